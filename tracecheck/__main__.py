@@ -1,0 +1,3 @@
+from tracecheck.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,168 @@
+"""Git access: the only module that imports gitpython.
+
+Single-purpose functions; every gitpython exception is converted here into a
+:class:`~tracecheck.errors.GitError` naming the revision, path or repository.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+from tracecheck.errors import GitError
+
+__all__ = [
+    "open_repo",
+    "repo_root",
+    "read_blob",
+    "blob_id",
+    "resolve",
+    "merge_base",
+    "is_dirty",
+    "head_commit",
+    "commit_all",
+    "init_repo",
+    "tag",
+    "create_branch",
+    "checkout",
+]
+
+
+@contextmanager
+def _converted(what: str) -> Iterator[None]:
+    import git
+
+    try:
+        yield
+    except git.GitCommandError as error:
+        stderr = (error.stderr or "").strip().removeprefix("stderr:").strip(" '\n")
+        raise GitError(f"{what}: git {error.command[1] if len(error.command) > 1 else ''} failed: {stderr}") from None
+    except (git.BadName, git.BadObject, ValueError) as error:
+        raise GitError(f"{what}: {error}") from None
+    except git.GitError as error:
+        raise GitError(f"{what}: {error}") from None
+
+
+def open_repo(cwd: Path):  # -> git.Repo
+    """The repository containing ``cwd``."""
+    import git
+
+    try:
+        return git.Repo(cwd, search_parent_directories=True)
+    except (git.InvalidGitRepositoryError, git.NoSuchPathError):
+        raise GitError(
+            f"{cwd}: not inside a git repository; REV:PATH specs and the gate need one."
+        ) from None
+
+
+def repo_root(cwd: Path) -> Path:
+    return Path(open_repo(cwd).working_tree_dir or cwd)
+
+
+def resolve(rev: str, cwd: Path) -> str:
+    """Full commit id of ``rev``."""
+    repo = open_repo(cwd)
+    try:
+        return repo.commit(rev).hexsha
+    except Exception:  # gitpython raises several unrelated types for a bad name
+        raise GitError(f"unknown git revision {rev!r} in {repo.working_tree_dir}.") from None
+
+
+def _tree_path(repo, path: str, cwd: Path) -> str:
+    # Paths are taken relative to the current folder when it lies inside the work tree,
+    # like the files a user names on the command line; "./" and "../" work as usual.
+    root = Path(repo.working_tree_dir).resolve()
+    absolute = (cwd / path).resolve()
+    try:
+        return absolute.relative_to(root).as_posix()
+    except ValueError:
+        raise GitError(f"{path}: lies outside the repository {root}.") from None
+
+
+def read_blob(rev: str, path: str, cwd: Path) -> bytes:
+    """The bytes of ``path`` at revision ``rev``."""
+    repo = open_repo(cwd)
+    commit = resolve(rev, cwd)
+    tree_path = _tree_path(repo, path, cwd)
+    try:
+        blob = repo.commit(commit).tree / tree_path
+    except KeyError:
+        raise GitError(f"{path}: does not exist at git revision {rev!r}.") from None
+    if blob.type != "blob":
+        raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
+    return blob.data_stream.read()
+
+
+def blob_id(rev: str, path: str, cwd: Path) -> str | None:
+    """Object id of ``path`` at ``rev``, or ``None`` when absent."""
+    repo = open_repo(cwd)
+    try:
+        return (repo.commit(resolve(rev, cwd)).tree / _tree_path(repo, path, cwd)).hexsha
+    except KeyError:
+        return None
+
+
+def merge_base(a: str, b: str, cwd: Path) -> str:
+    repo = open_repo(cwd)
+    with _converted(f"merge-base of {a} and {b}"):
+        bases = repo.merge_base(resolve(a, cwd), resolve(b, cwd))
+    if not bases:
+        raise GitError(f"{a} and {b} have no common ancestor.")
+    return bases[0].hexsha
+
+
+def head_commit(cwd: Path) -> str | None:
+    repo = open_repo(cwd)
+    try:
+        return repo.head.commit.hexsha
+    except ValueError:
+        return None
+
+
+def is_dirty(cwd: Path, path: Path | None = None) -> bool:
+    repo = open_repo(cwd)
+    with _converted("git status"):
+        if path is None:
+            return repo.is_dirty(untracked_files=True)
+        rel = _tree_path(repo, str(path), cwd)
+        return repo.is_dirty(path=rel) or rel in repo.untracked_files
+
+
+# --- writing, used only by the demo and tests to build repositories -----------------
+
+
+def init_repo(path: Path, branch: str = "main"):
+    import git
+
+    with _converted(f"git init {path}"):
+        repo = git.Repo.init(path, initial_branch=branch)
+        with repo.config_writer() as config:
+            config.set_value("user", "name", "tracecheck demo")
+            config.set_value("user", "email", "demo@tracecheck.invalid")
+            config.set_value("commit", "gpgsign", "false")
+    return repo
+
+
+def commit_all(repo, message: str, date: str | None = None) -> str:
+    env = {"GIT_AUTHOR_DATE": date, "GIT_COMMITTER_DATE": date} if date else {}
+    with _converted("git commit"):
+        repo.git.add(A=True)
+        with repo.git.custom_environment(**env):
+            repo.git.commit(m=message, allow_empty=True)
+    return repo.head.commit.hexsha
+
+
+def tag(repo, name: str) -> None:
+    with _converted(f"git tag {name}"):
+        repo.create_tag(name)
+
+
+def create_branch(repo, name: str, start: str = "HEAD") -> None:
+    with _converted(f"git branch {name}"):
+        repo.git.branch(name, start)
+
+
+def checkout(repo, name: str) -> None:
+    with _converted(f"git checkout {name}"):
+        repo.git.checkout(name)
