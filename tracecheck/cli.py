@@ -14,7 +14,6 @@ import sys
 import traceback
 from collections.abc import Callable
 
-
 import click
 
 from tracecheck import __version__

@@ -17,10 +17,11 @@ def run(
     config_option: str | None = None,
     input_format: str | None = None,
     fail_on: str = "error",
-    options: RenderOptions = RenderOptions(),
+    options: RenderOptions | None = None,
     streams: Streams | None = None,
 ) -> int:
     streams = streams or Streams.default()
+    options = options or RenderOptions()
     loaded = load(spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
     result = check_model(loaded.model, loaded.source.data, loaded.config, fail_on=fail_on)
     emit(render("check", fmt, result, options), output, streams)

@@ -54,7 +54,7 @@ def check_text(result: CheckResult, options: RenderOptions) -> str:
             severities = sorted({f.severity for f in findings})
             header = Text()
             header.append(f"{rule}", style="bold")
-            header.append(f"  {len(findings)} × {'/'.join(severities)}", style=_STYLE.get(severities[0], ""))
+            header.append(f"  {len(findings)} x {'/'.join(severities)}", style=_STYLE.get(severities[0], ""))
             lines = [header]
             for finding in findings:
                 line = Text("  ")
