@@ -71,7 +71,12 @@ class RuleContext:
         """Each (source, target, relation) with every link that has it, in file order."""
         groups: dict[tuple[str, str, str], list[Any]] = {}
         for link in self.model.links:
-            groups.setdefault(link.triple, []).append(link)
+            key = (link.source, link.target, link.relation)
+            group = groups.get(key)
+            if group is None:
+                groups[key] = [link]
+            else:
+                group.append(link)
         return groups
 
 
