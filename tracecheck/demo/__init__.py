@@ -1,6 +1,6 @@
 """``tracecheck demo``: build the ferry shore-charging model repository and run the job.
 
-The stage exports ship inside the package (``tracecheck/demo/data``), so the demo
+The stage exports are built by :mod:`tracecheck.demo.stages` inside the package, so the demo
 works after a plain ``pip install .`` from any folder. It writes only into the folder
 it is given (which must be new or empty) and prints what it did and where.
 """
@@ -10,10 +10,10 @@ from __future__ import annotations
 import sys
 import tempfile
 from dataclasses import dataclass, field
-from importlib import resources
 from pathlib import Path
 from typing import TextIO
 
+from tracecheck.demo.stages import stage_bytes
 from tracecheck.errors import UsageError
 
 __all__ = ["STAGES", "run", "build_repository", "stage_bytes"]
@@ -47,9 +47,6 @@ at_least = 2
 """
 
 
-def stage_bytes(name: str) -> bytes:
-    """The bundled thread JSON of a stage (or of the proposed change)."""
-    return resources.files("tracecheck.demo").joinpath(f"data/{name}.json").read_bytes()
 
 
 @dataclass

@@ -5,6 +5,8 @@ from __future__ import annotations
 import json
 from itertools import groupby
 
+from rich.padding import Padding
+from rich.table import Table
 from rich.text import Text
 
 from tracecheck.check import CheckResult
@@ -55,15 +57,12 @@ def check_text(result: CheckResult, options: RenderOptions) -> str:
             header = Text()
             header.append(f"{rule}", style="bold")
             header.append(f"  {len(findings)} x {'/'.join(severities)}", style=_STYLE.get(severities[0], ""))
-            lines = [header]
+            table = Table.grid(padding=(0, 2))
+            table.add_column(style="dim", no_wrap=True)
+            table.add_column(overflow="fold")
             for finding in findings:
-                line = Text("  ")
-                line.append(_where(finding), style="dim")
-                line.append("  ")
-                line.append(finding.message)
-                lines.append(line)
-            items.append(Text(""))
-            items.extend(lines)
+                table.add_row(_where(finding), finding.message)
+            items += [Text(""), header, Padding(table, (0, 0, 0, 2))]
         items.append(Text(""))
     verdict = summary_line(result)
     items.append(Text(verdict, style="bold red" if result.failing else "bold green"))

@@ -25,7 +25,8 @@ def to_text(renderables: list[RenderableType], options: RenderOptions) -> str:
     )
     for item in renderables:
         console.print(item)
-    return buffer.getvalue()
+    # Table cells are padded to the console width; trailing blanks only bloat files.
+    return "\n".join(line.rstrip(" ") for line in buffer.getvalue().split("\n"))
 
 
 def stderr_console(color: bool) -> Console:

@@ -1,0 +1,114 @@
+"""The structural diff of two matched models: element fields, moves and links."""
+
+from __future__ import annotations
+
+import difflib
+import re
+from collections import defaultdict
+from collections.abc import Mapping
+from typing import Any
+
+from tracecheck.model import Element, Model
+
+__all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
+
+MISSING = None  # an absent field or attribute is reported as null
+_SPLIT = re.compile(r"\S+")
+
+
+def word_diff(old: str | None, new: str | None) -> list[dict[str, str]]:
+    """Word-level diff of two texts as runs ``{"op": equal|delete|insert, "text"}``.
+
+    Whitespace is normalised (a reflowed paragraph is unchanged word by word); the runs
+    come from :class:`difflib.SequenceMatcher` over the word lists, with autojunk off so
+    frequent words ("the", "shall") are still aligned.
+    """
+    a, b = _SPLIT.findall(old or ""), _SPLIT.findall(new or "")
+    runs: list[dict[str, str]] = []
+    matcher = difflib.SequenceMatcher(None, a, b, autojunk=False)
+    for op, i1, i2, j1, j2 in matcher.get_opcodes():
+        if op == "equal":
+            runs.append({"op": "equal", "text": " ".join(a[i1:i2])})
+            continue
+        if i2 > i1:
+            runs.append({"op": "delete", "text": " ".join(a[i1:i2])})
+        if j2 > j1:
+            runs.append({"op": "insert", "text": " ".join(b[j1:j2])})
+    return runs
+
+
+def _jsonable(value: Any) -> Any:
+    return list(value) if isinstance(value, tuple) else value
+
+
+def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
+    """Changed fields of a matched pair: ``name``, ``text``, ``kind``, ``attributes.KEY``.
+
+    The id and the parent are not fields here (re-identification and moves have their
+    own lists). A ``text`` change also carries its word-level ``words`` runs.
+    """
+    changes: dict[str, dict[str, Any]] = {}
+    for name in ("kind", "name", "text"):
+        before, after = getattr(old, name), getattr(new, name)
+        if before != after:
+            changes[name] = {"old": before, "new": after}
+    if "text" in changes and old.text is not None and new.text is not None:
+        if " ".join(old.text.split()) == " ".join(new.text.split()):
+            del changes["text"]  # only reflowed: no word changed
+        else:
+            changes["text"]["words"] = word_diff(old.text, new.text)
+    for key in sorted(set(old.attributes) | set(new.attributes)):
+        before, after = old.attributes.get(key, MISSING), new.attributes.get(key, MISSING)
+        if before != after or type(before) is not type(after):
+            changes[f"attributes.{key}"] = {"old": _jsonable(before), "new": _jsonable(after)}
+    return dict(sorted(changes.items()))
+
+
+def moves(old: Model, new: Model, mapping: Mapping[str, str]) -> list[dict[str, str | None]]:
+    """Matched elements whose parent, seen through the mapping, is a different element."""
+    found = []
+    for old_id, new_id in mapping.items():
+        before = old.by_id[old_id].parent
+        after = new.by_id[new_id].parent
+        translated = None if before is None else mapping.get(before, before)
+        if translated != after:
+            found.append({"id": new_id, "old_parent": before, "new_parent": after})
+    return sorted(found, key=lambda m: m["id"])
+
+
+def link_json(triple: tuple[str, str, str]) -> dict[str, str]:
+    return {"source": triple[0], "target": triple[1], "relation": triple[2]}
+
+
+def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str, list]:
+    """Links added and removed after mapping old ids to new ones, and relation changes.
+
+    An old link is carried into the new id space end by end (an end that was never
+    matched keeps its id). ``removed`` lists links in their *old* ids, ``added`` in
+    the new ones. ``relation_changed`` pairs a removed and an added link between the
+    same two ends when each is the only one there; both stay in ``added``/``removed``
+    so those two lists remain the plain set difference of triples.
+    """
+    carried: dict[tuple[str, str, str], tuple[str, str, str]] = {}
+    for link in old.links:
+        key = (mapping.get(link.source, link.source), mapping.get(link.target, link.target), link.relation)
+        carried.setdefault(key, link.triple)
+    now = {link.triple for link in new.links}
+    removed = sorted(carried[k] for k in carried.keys() - now)
+    added = sorted(now - carried.keys())
+    gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
+    for key in carried.keys() - now:
+        gone[key[:2]].append(carried[key])
+    came: dict[tuple[str, str], list[str]] = defaultdict(list)
+    for s, t, r in added:
+        came[(s, t)].append(r)
+    changed = []
+    for ends in sorted(gone.keys() & came.keys()):
+        if len(gone[ends]) == 1 and len(came[ends]) == 1:
+            changed.append({"source": ends[0], "target": ends[1],
+                            "old_relation": gone[ends][0][2], "new_relation": came[ends][0]})
+    return {
+        "added": [link_json(t) for t in added],
+        "removed": [link_json(t) for t in removed],
+        "relation_changed": changed,
+    }

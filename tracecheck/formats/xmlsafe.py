@@ -1,0 +1,165 @@
+"""The one hardened XML parser configuration every XML reader uses.
+
+Model exports arrive from other people's tools and repositories, so an XML input is
+treated as hostile until proven otherwise:
+
+* entity expansion, DTD loading, network access and the libxml2 "huge tree" mode are
+  off (``resolve_entities=False, no_network=True, load_dtd=False, huge_tree=False``);
+* a DOCTYPE that declares any entity (general or parameter, internal or external) or
+  names an external subset (``SYSTEM`` / ``PUBLIC``) is refused before any content is
+  read, with exit code 2 — billion laughs, external file or network entities and
+  parameter-entity tricks never reach the model builder;
+* a plain ``<!DOCTYPE name>`` (or an internal subset with only element and attribute-list
+  declarations) is accepted, since it cannot pull anything in;
+* parse errors become :class:`~tracecheck.errors.InputError` with file, line and column.
+
+The prolog is checked twice: a byte-level scan (fast, independent of libxml2), then
+the document's ``docinfo`` as libxml2 saw it at the root element's start tag (catches
+encodings the scan cannot read). lxml >= 6.1.3 is required because earlier ``iterparse``
+resolved entities by default (see pyproject.toml).
+"""
+
+from __future__ import annotations
+
+import io
+import re
+from collections.abc import Iterable, Iterator
+from typing import Any
+
+from lxml import etree
+
+from tracecheck.errors import InputError
+
+__all__ = ["SAFE_OPTIONS", "iterparse", "check_prolog", "release", "head_text", "safe_parser"]
+
+SAFE_OPTIONS: dict[str, Any] = {
+    "resolve_entities": False,
+    "no_network": True,
+    "load_dtd": False,
+    "huge_tree": False,
+    "dtd_validation": False,
+    "attribute_defaults": False,
+}
+
+# How much of the input the byte-level scan looks at for the DOCTYPE: the prolog of a
+# real export is a few hundred bytes; a DOCTYPE later than this is found by libxml2.
+_SCAN_LIMIT = 1 << 20
+_DOCTYPE = re.compile(rb"<!DOCTYPE\s+[^\s\[>]+\s*(?P<external>SYSTEM|PUBLIC)?", re.IGNORECASE)
+_ENTITY = re.compile(rb"<!ENTITY", re.IGNORECASE)
+# The internal subset up to the first "]>"; an entity value containing "]>" ends the
+# scan early, and the docinfo check below still sees the declaration.
+_SUBSET = re.compile(rb"\s*\[.*?\]\s*>", re.DOTALL)
+
+
+def safe_parser() -> etree.XMLParser:
+    """A tree parser with the hardened options (for small documents such as tests)."""
+    return etree.XMLParser(**SAFE_OPTIONS)
+
+
+def _refuse(origin: str, why: str) -> InputError:
+    return InputError(
+        f"{origin}: refused: the XML document's DOCTYPE {why}. tracecheck reads XML with "
+        "entity expansion, DTD loading and network access off, and does not read "
+        "documents that declare entities or an external DTD; export the model without "
+        "a DOCTYPE."
+    )
+
+
+def _scan_prolog(data: bytes, origin: str) -> None:
+    head = data[:_SCAN_LIMIT]
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        head = head.decode("utf-16", errors="replace").encode("utf-8", errors="replace")
+    match = _DOCTYPE.search(head)
+    if match is None:
+        return
+    if match.group("external"):
+        raise _refuse(origin, "names an external DTD (SYSTEM or PUBLIC)")
+    subset = _SUBSET.match(head, match.end())
+    if subset is not None and _ENTITY.search(subset.group(0)):
+        raise _refuse(origin, "declares entities")
+
+
+def _check_docinfo(root: Any, origin: str) -> None:
+    docinfo = root.getroottree().docinfo
+    if docinfo.system_url or docinfo.public_id:
+        raise _refuse(origin, "names an external DTD (SYSTEM or PUBLIC)")
+    subset = docinfo.internalDTD
+    if subset is not None and any(True for _ in subset.entities()):
+        raise _refuse(origin, "declares entities")
+
+
+def check_prolog(data: bytes, origin: str) -> None:
+    """Refuse a document whose DOCTYPE declares entities or an external subset.
+
+    Reads only up to the root element's start tag.
+
+    Raises
+    ------
+    InputError
+        The DOCTYPE is refused, or the prolog itself is malformed.
+    """
+    _scan_prolog(data, origin)
+    parser = etree.XMLPullParser(events=("start",), **SAFE_OPTIONS)
+    try:
+        for offset in range(0, max(len(data), 1), 1 << 16):
+            parser.feed(data[offset : offset + (1 << 16)])
+            for _event, root in parser.read_events():
+                _check_docinfo(root, origin)
+                return
+        parser.close()
+    except etree.XMLSyntaxError as error:
+        raise syntax_error(error, origin) from None
+
+
+def syntax_error(error: etree.XMLSyntaxError, origin: str) -> InputError:
+    """An :class:`InputError` naming the first fatal libxml2 error and its line."""
+    message, line, column = error.msg, error.lineno, error.position[1]
+    fatal = [entry for entry in error.error_log if entry.level_name == "FATAL"]
+    if fatal:  # iterparse reports some errors as "no element found" at line 0
+        message, line, column = fatal[0].message, fatal[0].line, fatal[0].column
+    message = re.sub(r", line \d+, column \d+$", "", message or "not well-formed")
+    where = f"{origin}:{line}:{column}" if line else origin
+    return InputError(f"{where}: malformed XML: {message}.")
+
+
+def iterparse(
+    data: bytes,
+    origin: str,
+    *,
+    events: Iterable[str] = ("end",),
+    tag: Iterable[str] | str | None = None,
+) -> Iterator[tuple[str, Any]]:
+    """``lxml.etree.iterparse`` over ``data`` with the hardened options.
+
+    The prolog is checked first, so a refused document yields nothing at all.
+    Callers clear what they have read with :func:`release`.
+
+    Raises
+    ------
+    InputError
+        Refused DOCTYPE or malformed XML (with line and column).
+    """
+    check_prolog(data, origin)
+    context = etree.iterparse(
+        io.BytesIO(data), events=tuple(events), tag=tag, remove_blank_text=False, **SAFE_OPTIONS
+    )
+    try:
+        yield from context
+    except etree.XMLSyntaxError as error:
+        raise syntax_error(error, origin) from None
+
+
+def release(element: Any) -> None:
+    """Free an element read by :func:`iterparse` and the siblings before it."""
+    element.clear(keep_tail=False)
+    parent = element.getparent()
+    if parent is not None:
+        while element.getprevious() is not None:
+            del parent[0]
+
+
+def head_text(head: bytes) -> str:
+    """The first bytes of an input as text, for content sniffing (honours a UTF-16 BOM)."""
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return head.decode("utf-16", errors="ignore")
+    return head.decode("utf-8", errors="ignore")
