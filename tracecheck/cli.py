@@ -176,6 +176,34 @@ def demo(ctx: click.Context, directory: str | None, no_color: bool) -> int:
 # --- commands added by later capabilities go below this line --------------------------
 
 
+@cli.command()
+@click.argument("old")
+@click.argument("new", required=False)
+@_common(["text", "json", "markdown", "html"])
+@click.option("--fail-on-change", is_flag=True, help="Exit 1 when the two models differ.")
+@click.option("--input-format", default=None, help="Read both models as this format instead of detecting it.")
+@click.pass_context
+def diff(ctx: click.Context, old: str, new: str | None, fmt: str, output: str | None, config_option: str | None,
+         quiet: bool, no_color: bool, debug: bool, fail_on_change: bool, input_format: str | None) -> int:
+    """Show what changed from OLD to NEW (two model specs), or REV1..REV2 PATH.
+
+    Elements are matched by id, then by content (re-identified); the report lists the
+    elements whose review the changes invalidate. Exit 0 unless --fail-on-change.
+    """
+    from tracecheck.commands import diff as command
+
+    return command.run(
+        old,
+        new,
+        fmt=fmt,
+        output=output,
+        config_option=config_option,
+        input_format=input_format,
+        fail_on_change=fail_on_change,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 

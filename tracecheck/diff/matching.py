@@ -9,6 +9,7 @@ assignment, and only pairs scoring at least the threshold are kept.
 
 from __future__ import annotations
 
+import hashlib
 import re
 from collections import defaultdict
 from collections.abc import Iterable, Mapping
@@ -202,12 +203,22 @@ def _candidates(old: dict[str, _Profile], new: dict[str, _Profile]) -> dict[str,
     return found
 
 
+def _tie_break(a: str, b: str) -> float:
+    """A tiny weight, the same for (a, b) and (b, a), that makes equal scores unequal.
+
+    With all weights distinct the maximum-weight matching is unique, so diffing A
+    against B pairs the same elements as diffing B against A.
+    """
+    digest = hashlib.blake2b("\0".join(sorted((a, b))).encode("utf-8"), digest_size=4).digest()
+    return int.from_bytes(digest, "big") * 1e-18
+
+
 def _assign(scored: list[tuple[str, str, float]]) -> list[tuple[str, str, float]]:
     """One-to-one assignment of maximum total score (Edmonds' blossom algorithm as
     implemented by :func:`networkx.max_weight_matching`) on the bipartite candidate graph."""
     graph = nx.Graph()
     for old_id, new_id, score in sorted(scored):
-        graph.add_edge(("old", old_id), ("new", new_id), weight=score)
+        graph.add_edge(("old", old_id), ("new", new_id), weight=score + _tie_break(old_id, new_id), score=score)
     pairs = []
     for component in sorted(nx.connected_components(graph), key=lambda c: min(c)):
         sub = graph.subgraph(component)
@@ -218,7 +229,7 @@ def _assign(scored: list[tuple[str, str, float]]) -> list[tuple[str, str, float]
         for u, v in matched:
             if u[0] == "new":
                 u, v = v, u
-            pairs.append((u[1], v[1], graph[u][v]["weight"]))
+            pairs.append((u[1], v[1], graph[u][v]["score"]))
     return sorted(pairs)
 
 

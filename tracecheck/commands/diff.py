@@ -1,0 +1,51 @@
+"""``tracecheck diff OLD NEW`` and ``tracecheck diff REV1..REV2 PATH``."""
+
+from __future__ import annotations
+
+import os
+
+from tracecheck.commands.common import Streams, emit, load
+from tracecheck.diff import diff_models
+from tracecheck.errors import UsageError
+from tracecheck.report import RenderOptions, render
+
+__all__ = ["run", "sides"]
+
+
+def sides(old: str, new: str | None) -> tuple[str, str]:
+    """The two model specs: ``OLD NEW`` as given, or ``REV1..REV2 PATH`` expanded to
+    ``REV1:PATH`` and ``REV2:PATH``."""
+    if new is None:
+        raise UsageError("diff needs two models (OLD NEW) or a revision range and a path (REV1..REV2 PATH).")
+    if ".." in old and not os.path.exists(old) and ":" not in old:
+        first, _, second = old.partition("..")
+        if not first or not second or ".." in second:
+            raise UsageError(f"{old}: a revision range is written REV1..REV2, both revisions given.")
+        return f"{first}:{new}", f"{second}:{new}"
+    return old, new
+
+
+def run(
+    old: str,
+    new: str | None,
+    *,
+    fmt: str = "text",
+    output: str | None = None,
+    config_option: str | None = None,
+    input_format: str | None = None,
+    fail_on_change: bool = False,
+    options: RenderOptions | None = None,
+    streams: Streams | None = None,
+) -> int:
+    streams = streams or Streams.default()
+    options = options or RenderOptions()
+    old_spec, new_spec = sides(old, new)
+    if old_spec == "-" and new_spec == "-":
+        raise UsageError("only one side of a diff can be read from standard input.")
+    # One configuration for both sides, found from the new one: the rules of the stage
+    # under review judge both.
+    after = load(new_spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
+    before = load(old_spec, input_format=input_format, stdin=streams.stdin, config=after.config)
+    result = diff_models(before.model, after.model, after.config, with_picture=fmt == "html")
+    emit(render("diff", fmt, result, options), output, streams)
+    return 1 if fail_on_change and result.changed else 0

@@ -1,0 +1,168 @@
+"""Stage diff: match two models, then compare fields, parents, links and coverage.
+
+:func:`diff_models` is the one entry point (the ``diff`` command, ``gate`` and the demo
+call it); :class:`DiffResult` is what the renderers read.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass, field
+from typing import Any
+
+from tracecheck.config import Config
+from tracecheck.coverage import evaluate_all
+from tracecheck.diff.impact import impact_rules, impacted
+from tracecheck.diff.matching import Matching, MatchOptions, match_elements
+from tracecheck.diff.picture import Picture, neighbourhood_picture
+from tracecheck.diff.structural import field_changes, link_changes, moves
+from tracecheck.model import Model
+from tracecheck.rules.engine import run_rules
+
+__all__ = ["DiffResult", "diff_models", "CAUTION"]
+
+CAUTION = (
+    "This diff supports, and does not replace, review by qualified people. Tool "
+    "qualification under the applicable standard is the user's responsibility; local "
+    "codes and licensed practice prevail."
+)
+
+_CATEGORIES = ("added", "removed", "modified", "moved", "reidentified")
+
+
+@dataclass(frozen=True)
+class DiffResult:
+    """Everything one diff found, in the sorted form the JSON contract fixes."""
+
+    old_origin: str
+    new_origin: str
+    elements: dict[str, list]
+    links: dict[str, list]
+    impact: list[dict[str, Any]]
+    coverage: dict[str, dict[str, float | None]]
+    findings: dict[str, list[dict[str, Any]]]
+    kinds: dict[str, str] = field(default_factory=dict)  # id -> kind, both sides
+    counts: dict[str, int] = field(default_factory=dict)  # elements/links per side
+    picture: Picture | None = None  # the changed neighbourhood, laid out (HTML view)
+
+    @property
+    def changed(self) -> bool:
+        return any(self.elements[c] for c in _CATEGORIES) or bool(self.links["added"] or self.links["removed"])
+
+    def by_kind(self) -> dict[str, dict[str, int]]:
+        table: dict[str, Counter] = {}
+        for category in _CATEGORIES:
+            for entry in self.elements[category]:
+                element_id = entry if isinstance(entry, str) else entry.get("id", entry.get("new"))
+                table.setdefault(self.kinds.get(element_id, "?"), Counter())[category] += 1
+        return {k: {c: table[k].get(c, 0) for c in _CATEGORIES} for k in sorted(table)}
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "old": self.old_origin,
+            "new": self.new_origin,
+            "size": dict(self.counts),
+            "elements": {c: len(self.elements[c]) for c in _CATEGORIES},
+            "by_kind": self.by_kind(),
+            "links": {k: len(v) for k, v in self.links.items()},
+            "impacted": len({entry["element"] for entry in self.impact}),
+            "coverage": self.coverage,
+            "findings": {k: len(v) for k, v in self.findings.items()},
+            "changed": self.changed,
+            "caution": CAUTION,
+        }
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "elements": self.elements,
+            "links": self.links,
+            "impact": self.impact,
+            "findings": self.findings,
+            "summary": self.summary(),
+        }
+
+
+def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list]:
+    mapping = matching.mapping
+    image = set(mapping.values())
+    modified = []
+    for old_id, new_id in sorted(mapping.items(), key=lambda p: p[1]):
+        changes = field_changes(old.by_id[old_id], new.by_id[new_id])
+        if changes:
+            entry: dict[str, Any] = {"id": new_id, "changes": changes}
+            if old_id != new_id:
+                entry["old_id"] = old_id
+            modified.append(entry)
+    return {
+        "added": sorted(i for i in new.by_id if i not in image),
+        "removed": sorted(i for i in old.by_id if i not in mapping),
+        "modified": modified,
+        "moved": moves(old, new, mapping),
+        "reidentified": [{"old": o, "new": n, "score": s} for o, n, s in matching.reidentified],
+    }
+
+
+def _impact(old: Model, new: Model, elements: dict[str, list], mapping: dict[str, str], config: Config) -> list:
+    """One entry per (impacted element, changed element), with the connecting path."""
+    rules = impact_rules(config)
+    causes: dict[str, set[str]] = {}
+    for entry in elements["modified"]:
+        causes.setdefault(entry["id"], set()).add("modified")
+    for entry in elements["moved"]:
+        causes.setdefault(entry["id"], set()).add("moved")
+    entries = []
+    for cause in sorted(causes):
+        for element_id, path in sorted(impacted(new, cause, rules).items()):
+            entries.append({"element": element_id, "because": cause, "change": sorted(causes[cause]), "path": path})
+    for cause in elements["removed"]:
+        for element_id, path in sorted(impacted(old, cause, rules).items()):
+            if element_id in mapping:  # still there in the new model
+                entries.append({"element": mapping[element_id], "because": cause, "change": ["removed"], "path": path})
+    return sorted(entries, key=lambda e: (e["element"], e["because"]))
+
+
+def _coverage(old: Model, new: Model, config: Config) -> dict[str, dict[str, float | None]]:
+    before = {r.declaration.name: r.percent for r in evaluate_all(old, config.declarations)}
+    after = {r.declaration.name: r.percent for r in evaluate_all(new, config.declarations)}
+    return {name: {"old": before.get(name), "new": after.get(name)} for name in sorted(before.keys() | after.keys())}
+
+
+def _findings(old: Model, new: Model, config: Config) -> dict[str, list[dict[str, Any]]]:
+    """Findings new in ``new`` and resolved since ``old``, compared by fingerprint."""
+    before = {f.fingerprint: f for f in run_rules(old, config)}
+    after = {f.fingerprint: f for f in run_rules(new, config)}
+    return {
+        "new": [after[k].to_json() for k in sorted(after.keys() - before.keys())],
+        "resolved": [before[k].to_json() for k in sorted(before.keys() - after.keys())],
+    }
+
+
+def diff_models(
+    old: Model, new: Model, config: Config | None = None, *, with_checks: bool = True, with_picture: bool = True
+) -> DiffResult:
+    """Diff ``old`` against ``new`` under ``config`` (its ``[diff]`` and ``[impact]``
+    sections, metamodel and coverage declarations).
+
+    ``with_checks=False`` leaves out the coverage and findings comparison (the parts
+    that rerun the rule engine on both sides); ``with_picture=False`` the layout of
+    the changed neighbourhood that only the HTML view draws.
+    """
+    config = config or Config()
+    matching = match_elements(old, new, MatchOptions.from_section(config.section("diff")))
+    elements = _element_lists(old, new, matching)
+    kinds = {i: e.kind for i, e in old.by_id.items()} | {i: e.kind for i, e in new.by_id.items()}
+    links = link_changes(old, new, matching.mapping)
+    impact = _impact(old, new, elements, matching.mapping, config)
+    return DiffResult(
+        old.origin,
+        new.origin,
+        elements,
+        links,
+        impact,
+        _coverage(old, new, config) if with_checks else {},
+        _findings(old, new, config) if with_checks else {"new": [], "resolved": []},
+        kinds,
+        {"old_elements": len(old.by_id), "new_elements": len(new.by_id),
+         "old_links": len(old.links), "new_links": len(new.links)},
+        neighbourhood_picture(old, new, elements, links, impact) if with_picture else None,
+    )

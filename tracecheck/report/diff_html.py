@@ -1,0 +1,192 @@
+"""The HTML review page for ``diff``: one self-contained file (inline CSS and SVG, no
+scripts, no external assets) that prints cleanly."""
+
+from __future__ import annotations
+
+from html import escape
+
+from tracecheck.diff import CAUTION, DiffResult
+from tracecheck.report import RenderOptions, renderer
+
+__all__ = ["diff_html", "svg"]
+
+CATEGORIES = ("added", "removed", "modified", "moved", "reidentified")
+# Status -> (fill colour, shape). Colour and shape both differ, so the picture reads in
+# greyscale print and for colour-blind readers.
+_LOOK = {
+    "added": ("#1b7f3b", "triangle"),
+    "removed": ("#b3261e", "square"),
+    "modified": ("#c77700", "diamond"),
+    "impacted": ("#1f5fae", "ring"),
+    "context": ("#9a9a9a", "dot"),
+}
+_EDGE = {"kept": ("#888", ""), "added": ("#1b7f3b", ""), "removed": ("#b3261e", "6 4")}
+_CSS = """
+body{font-family:system-ui,sans-serif;margin:2em;color:#1a1a1a;max-width:80em}
+table{border-collapse:collapse;margin:.5em 0 1.5em}th,td{border:1px solid #ccc;padding:.25em .6em;text-align:left;vertical-align:top}
+th{background:#f1f1f1}td.n{text-align:right}.caution{border-left:4px solid #c77700;padding:.5em 1em;background:#fff7e6}
+del{background:#fbe3e1;color:#b3261e}ins{background:#e3f4e8;color:#1b7f3b;text-decoration:underline}
+details{margin:.3em 0}summary{font-weight:600;cursor:pointer}svg{border:1px solid #ddd;max-width:100%;height:auto}
+@media print{details{display:block}details>summary{list-style:none}body{margin:0}}
+"""
+
+
+def _shape(status: str, x: float, y: float, r: float = 6) -> str:
+    fill, shape = _LOOK[status]
+    if shape == "triangle":
+        points = f"{x:.1f},{y - r:.1f} {x + r:.1f},{y + r * 0.8:.1f} {x - r:.1f},{y + r * 0.8:.1f}"
+        return f'<polygon points="{points}" fill="{fill}"/>'
+    if shape == "square":
+        return f'<rect x="{x - r * 0.8:.1f}" y="{y - r * 0.8:.1f}" width="{r * 1.6:.1f}" height="{r * 1.6:.1f}" fill="{fill}"/>'
+    if shape == "diamond":
+        points = f"{x:.1f},{y - r:.1f} {x + r:.1f},{y:.1f} {x:.1f},{y + r:.1f} {x - r:.1f},{y:.1f}"
+        return f'<polygon points="{points}" fill="{fill}"/>'
+    if shape == "ring":
+        return f'<circle cx="{x:.1f}" cy="{y:.1f}" r="{r * 0.8:.1f}" fill="white" stroke="{fill}" stroke-width="3"/>'
+    return f'<circle cx="{x:.1f}" cy="{y:.1f}" r="{r * 0.5:.1f}" fill="{fill}"/>'
+
+
+def _legend() -> str:
+    items = []
+    for n, (status, _) in enumerate(_LOOK.items()):
+        x = 20 + n * 130
+        items.append(_shape(status, x, 16) + f'<text x="{x + 12}" y="20" font-size="12">{status}</text>')
+    items.append('<line x1="670" y1="16" x2="700" y2="16" stroke="#b3261e" stroke-dasharray="6 4" stroke-width="1.5"/>'
+                 '<text x="706" y="20" font-size="12">removed link</text>')
+    return f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 820 32" width="820" height="32" role="img" aria-label="legend">{"".join(items)}</svg>'
+
+
+def svg(result: DiffResult) -> str:
+    """The changed neighbourhood, drawn from the positions the analysis computed."""
+    picture = result.picture
+    if picture is None or not picture.nodes:
+        return "<p>No changed elements to draw.</p>"
+    size = 1000 if len(picture.nodes) <= 150 else 1400
+    pad, labels = 40, len(picture.nodes) <= 150
+    place = {n: (pad + x * (size - 2 * pad), pad + y * (size - 2 * pad)) for n, _, _, x, y in picture.nodes}
+    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {size} {size}" width="{size}" height="{size}" role="img" aria-label="changed neighbourhood">']
+    for s, t, relation, state in picture.edges:
+        (x1, y1), (x2, y2) = place[s], place[t]
+        colour, dash = _EDGE[state]
+        dashed = f' stroke-dasharray="{dash}"' if dash else ""
+        parts.append(f'<line x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" y2="{y2:.1f}" stroke="{colour}" stroke-width="1.2"{dashed}>'
+                     f"<title>{escape(s)} {escape(relation)} {escape(t)} ({state})</title></line>")
+    for node, status, kind, _, _ in picture.nodes:
+        x, y = place[node]
+        parts.append(f"<g><title>{escape(node)} ({escape(kind)}, {status})</title>{_shape(status, x, y)}")
+        if labels or status != "context":
+            parts.append(f'<text x="{x + 8:.1f}" y="{y + 4:.1f}" font-size="{10 if labels else 8}">{escape(node)}</text>')
+        parts.append("</g>")
+    parts.append("</svg>")
+    note = f"<p>{picture.left_out} further changed elements are not drawn; the tables list them all.</p>" if picture.left_out else ""
+    return "".join(parts) + note
+
+
+def _words(words: list[dict[str, str]]) -> str:
+    tag = {"equal": "{}", "delete": "<del>{}</del>", "insert": "<ins>{}</ins>"}
+    return " ".join(tag[w["op"]].format(escape(w["text"])) for w in words)
+
+
+def _value(value) -> str:
+    return "<em>(none)</em>" if value is None else f"<code>{escape(str(value))}</code>"
+
+
+def _detail(category: str, entry) -> str:
+    if category == "moved":
+        return f"parent {_value(entry['old_parent'])} → {_value(entry['new_parent'])}"
+    if category == "reidentified":
+        return f"was <code>{escape(entry['old'])}</code>, score {entry['score']:.2f}"
+    if category != "modified":
+        return ""
+    rows = []
+    for name, change in entry["changes"].items():
+        body = _words(change["words"]) if "words" in change else f"{_value(change['old'])} → {_value(change['new'])}"
+        rows.append(f"<b>{escape(name)}</b>: {body}")
+    return "<br>".join(rows)
+
+
+def _groups(result: DiffResult) -> str:
+    from tracecheck.report.diff import groups
+
+    parts = []
+    for kind, entries in groups(result):
+        rows = "".join(
+            f"<tr><td>{category}</td><td><code>{escape(_id(category, entry))}</code></td><td>{_detail(category, entry)}</td></tr>"
+            for category, entry in entries
+        )
+        parts.append(f"<details open><summary>{escape(kind)} ({len(entries)})</summary>"
+                     f"<table><tr><th>change</th><th>element</th><th>detail</th></tr>{rows}</table></details>")
+    return "".join(parts)
+
+
+def _id(category: str, entry) -> str:
+    if category in ("added", "removed"):
+        return entry
+    return entry["new"] if category == "reidentified" else entry["id"]
+
+
+def _counts(result: DiffResult) -> str:
+    head = "".join(f"<th>{c}</th>" for c in CATEGORIES)
+    rows = "".join(
+        f"<tr><td>{escape(kind)}</td>" + "".join(f'<td class="n">{counts[c]}</td>' for c in CATEGORIES) + "</tr>"
+        for kind, counts in result.by_kind().items()
+    )
+    return f"<table><tr><th>kind</th>{head}</tr>{rows}</table>"
+
+
+def _coverage(result: DiffResult) -> str:
+    if not result.coverage:
+        return ""
+
+    def pct(v):
+        return "n/a" if v is None else f"{v:.1f}%"
+
+    rows = "".join(f'<tr><td><code>{escape(n)}</code></td><td class="n">{pct(p["old"])}</td><td class="n">{pct(p["new"])}</td></tr>'
+                   for n, p in result.coverage.items())
+    return f"<h2>Coverage</h2><table><tr><th>declaration</th><th>before</th><th>after</th></tr>{rows}</table>"
+
+
+def _findings(result: DiffResult) -> str:
+    rows = [f"<tr><td>{state}</td><td><code>{escape(f['rule'])}</code></td><td>{escape(f['message'])}</td></tr>"
+            for state in ("new", "resolved") for f in result.findings[state]]
+    table = f"<table><tr><th></th><th>rule</th><th>message</th></tr>{''.join(rows)}</table>" if rows else ""
+    return f"<h2>Findings: {len(result.findings['new'])} new, {len(result.findings['resolved'])} resolved</h2>{table}"
+
+
+def _links(result: DiffResult) -> str:
+    rows = [f"<tr><td>{state}</td><td><code>{escape(lk['source'])}</code></td><td>{escape(lk['relation'])}</td><td><code>{escape(lk['target'])}</code></td></tr>"
+            for state in ("added", "removed") for lk in result.links[state]]
+    rows += [f"<tr><td>relation changed</td><td><code>{escape(c['source'])}</code></td><td>{escape(c['old_relation'])} → {escape(c['new_relation'])}</td><td><code>{escape(c['target'])}</code></td></tr>"
+             for c in result.links["relation_changed"]]
+    if not rows:
+        return ""
+    return f"<h2>Links</h2><details open><summary>{len(rows)} link changes</summary><table><tr><th>change</th><th>source</th><th>relation</th><th>target</th></tr>{''.join(rows)}</table></details>"
+
+
+def _impact(result: DiffResult) -> str:
+    if not result.impact:
+        return "<h2>Needs re-review</h2><p>Nothing.</p>"
+    rows = "".join(
+        f"<tr><td><code>{escape(e['element'])}</code></td><td><code>{escape(e['because'])}</code></td><td>{'/'.join(e['change'])}</td>"
+        f"<td>{escape('; '.join(p['source'] + ' ' + p['relation'] + ' ' + p['target'] for p in e['path']))}</td></tr>"
+        for e in result.impact
+    )
+    return ("<h2>Needs re-review</h2><table><tr><th>element</th><th>because</th><th>change</th><th>path</th></tr>"
+            f"{rows}</table>")
+
+
+@renderer("diff", "html")
+def diff_html(result: DiffResult, options: RenderOptions) -> str:
+    from tracecheck.report.diff import headline
+
+    title = f"Stage diff: {result.old_origin} → {result.new_origin}"
+    return (
+        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+        f"<title>{escape(title)}</title><style>{_CSS}</style></head><body>"
+        f"<h1>{escape(title)}</h1><p><b>{escape(headline(result))}</b></p>"
+        f'<p class="caution">{escape(CAUTION)}</p>'
+        f"<h2>Counts by kind</h2>{_counts(result)}{_coverage(result)}{_findings(result)}"
+        f"{_impact(result)}<h2>Changed neighbourhood</h2>{_legend()}<br>{svg(result)}"
+        f"<h2>Changes by kind</h2>{_groups(result)}{_links(result)}"
+        "</body></html>\n"
+    )
