@@ -204,6 +204,40 @@ def diff(ctx: click.Context, old: str, new: str | None, fmt: str, output: str | 
     )
 
 
+@cli.command()
+@click.argument("model")
+@_common(["text", "json", "markdown", "csv", "html"])
+@click.option("--by", "group_by", multiple=True, metavar="ATTRIBUTE",
+              help="Also count per value of this attribute (repeatable; default from [report.coverage] by).")
+@click.option("--matrix", type=click.Path(dir_okay=False), default=None,
+              help="Also write the traceability matrix as CSV to FILE.")
+@click.option("--profile", default=None, metavar="NAME",
+              help="Declarations following a standard's trace obligations: airborne-software, road-vehicles, medical-software.")
+@click.option("--result-attribute", default=None, metavar="NAME",
+              help="Test attribute holding pass/fail/blocked/not-run (default: result).")
+@click.option("--fail-under", type=float, default=None, metavar="PERCENT",
+              help="Exit 1 when a declaration's coverage is below PERCENT.")
+@click.option("--timestamp", is_flag=True, help="Record the time of the run in the evidence (reruns then differ).")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def coverage(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
+             quiet: bool, no_color: bool, debug: bool, group_by: tuple[str, ...], matrix: str | None,
+             profile: str | None, result_attribute: str | None, fail_under: float | None,
+             timestamp: bool, input_format: str | None) -> int:
+    """Coverage of MODEL per declaration and group, with gaps, test results and evidence.
+
+    Exit 0 unless --fail-under is given and a declaration is below it (then 1).
+    """
+    from tracecheck.commands import coverage as command
+
+    return command.run(
+        model, fmt=fmt, output=output, matrix=matrix, config_option=config_option,
+        input_format=input_format, group_by=group_by, result_attribute=result_attribute,
+        profile=profile, timestamp=timestamp, fail_under=fail_under,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 
