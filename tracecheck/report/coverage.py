@@ -128,7 +128,8 @@ def evidence_lines(report: CoverageReport) -> list[tuple[str, str]]:
     if e["profile"] is not None:
         p = e["profile"]
         lines.append(("profile", f"{p['name']}: {p['standard']}; SHA-256 {p['sha256']}"))
-    lines.append(("declarations", f"{len(e['declarations'])}, SHA-256 {e['declarations_sha256']}"))
+    names = ", ".join(d["name"] for d in e["declarations"])
+    lines.append(("declarations", f"{len(e['declarations'])}: {names}; SHA-256 {e['declarations_sha256']}"))
     counts = e["counts"]
     kinds = ", ".join(f"{k} {n}" for k, n in counts["by_kind"].items())
     lines.append(("counts", f"{counts['elements']} elements ({kinds}), {counts['links']} links"))
