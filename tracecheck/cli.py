@@ -238,6 +238,50 @@ def coverage(ctx: click.Context, model: str, fmt: str, output: str | None, confi
     )
 
 
+@cli.group()
+def review() -> None:
+    """Record reviewed trace links in .tracecheck/reviews.json and list the stale ones.
+
+    A link is stale when an end it joins (kind, name, text or attributes) has changed
+    since it was accepted. The ledger lives at the root of the model's repository.
+    """
+
+
+@review.command("accept")
+@click.argument("model")
+@click.argument("links", nargs=-1)
+@click.option("--all", "all_links", is_flag=True, help="Accept every link of MODEL whose ends exist.")
+@click.option("--by", default=None, metavar="NAME", help="Who accepts (default: git's user.name).")
+@click.option("--on", default=None, metavar="YYYY-MM-DD", help="The date of the review (default: today, UTC).")
+@click.option("--config", "config_option", type=click.Path(dir_okay=False), default=None,
+              help="Configuration file (default: found upwards from the model).")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.option("--debug", is_flag=True, hidden=True)
+def review_accept(model: str, links: tuple[str, ...], all_links: bool, by: str | None, on: str | None,
+                  config_option: str | None, input_format: str | None, debug: bool) -> int:
+    """Accept LINKS of MODEL, each written 'SOURCE RELATION TARGET' (one argument)."""
+    from tracecheck.commands import review as command
+
+    return command.accept(model, links, all_links=all_links, by=by, on=on,
+                          config_option=config_option, input_format=input_format)
+
+
+@review.command("status")
+@click.argument("model")
+@_common(["text", "json"])
+@click.option("--fail-on-stale", is_flag=True, help="Exit 1 when a link is stale.")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def review_status(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
+                  quiet: bool, no_color: bool, debug: bool, fail_on_stale: bool, input_format: str | None) -> int:
+    """List the links of MODEL that changed since review, and how many are current."""
+    from tracecheck.commands import review as command
+
+    return command.status(model, fmt=fmt, output=output, fail_on_stale=fail_on_stale,
+                          config_option=config_option, input_format=input_format,
+                          options=_render_options(ctx, quiet, no_color, output))
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 
