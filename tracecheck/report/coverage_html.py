@@ -79,9 +79,18 @@ _SCRIPT = """
    });
   });
  });
- var summary=document.getElementById('summary');
- if(summary){var box=summary.getBoundingClientRect();
-  root.setAttribute('data-summary-visible',box.top>=0&&box.top<window.innerHeight&&box.height>0?'1':'0');}
+ var first=document.querySelector('#summary-table tbody tr');
+ if(first){var box=first.getBoundingClientRect();
+  root.setAttribute('data-summary-visible',box.top>=0&&box.bottom<=window.innerHeight&&box.height>0?'1':'0');}
+ if(location.hash==='#selftest'){
+  // Exercised by the browser test: filter the matrix, sort the summary by percent.
+  var input=document.querySelector('input.filter[data-target="matrix"]'),rows=document.querySelectorAll('#matrix tbody tr');
+  input.value=rows.length?rows[0].cells[0].textContent:'';input.dispatchEvent(new Event('input'));
+  var shown=Array.prototype.filter.call(rows,function(r){return r.style.display!=='none';}).length;
+  var th=document.querySelectorAll('#summary-table th')[4];th.click();
+  var order=Array.prototype.map.call(document.querySelectorAll('#summary-table tbody tr'),function(r){return r.cells[4].textContent;});
+  root.setAttribute('data-selftest','shown='+shown+';order='+order.join(','));
+ }
  root.setAttribute('data-ready','1');
 })();
 """
