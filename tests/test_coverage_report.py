@@ -318,6 +318,8 @@ def test_evidence_hashes_equal_sha256_of_the_files(tmp_path):
     assert evidence["group_by"] == ["integrity"]  # taken from [report.coverage]
     assert evidence["counts"]["elements"] == 14 and evidence["counts"]["links"] == 10
     assert "generated" not in evidence
+    # By hand: TST-1 pass, TST-2 fail, TST-3 blocked, TST-4 no result, TST-5 fail.
+    assert evidence["counts"]["test_results"] == {UNSET: 1, "blocked": 1, "fail": 2, "pass": 1}
     # Now m.csv is an untracked file: the tree is dirty, the model itself unchanged ...
     again = json.loads(run("coverage", "--format", "json", str(path)).stdout)["evidence"]["model"]["git"]
     assert (again["dirty"], again["modified"]) == (True, False)
@@ -405,6 +407,7 @@ def test_bad_input_is_one_message_and_exit_2(tmp_path):
         (["--profile", "shipbuilding", path], "unknown profile"),
         (["--matrix", "-", path], "--matrix needs a file name"),
         ([str(tmp_path / "missing.json")], "no such file"),
+        (["--by", "integrty", path], "no element carries the attribute 'integrty'"),
     ]
     for args, words in cases:
         result = CliRunner().invoke(cli, ["coverage", *args])

@@ -388,6 +388,7 @@ def build_evidence(
             "links": len(model.links),
             "by_kind": dict(sorted(model.kinds.items())),
             "declarations": len(declarations),
+            "test_results": _test_results(model, settings.result_attribute),
         },
         "caution": CAUTION,
     }
@@ -397,9 +398,34 @@ def build_evidence(
     return evidence
 
 
+def _check_group_attributes(model: Model, group_by: Sequence[str]) -> None:
+    # An attribute that no element carries is almost always a typo; grouping by it
+    # would silently put everything under "(unset)".
+    if not group_by:
+        return
+    present = {key for element in model.by_id.values() for key in element.attributes}
+    missing = [a for a in group_by if a not in present]
+    if missing:
+        known = ", ".join(sorted(present)) or "none"
+        raise UsageError(
+            f"{model.origin}: no element carries the attribute {missing[0]!r} to group by; "
+            f"attributes in the model: {known}."
+        )
+
+
+def _test_results(model: Model, attribute: str) -> dict[str, int]:
+    counts: dict[str, int] = {}
+    for element in model.by_id.values():
+        if element.kind == "test":
+            key = _result_of(element, attribute)
+            counts[key] = counts.get(key, 0) + 1
+    return dict(sorted(counts.items()))
+
+
 def build_report(source: Source, model: Model, config: Config, settings: Settings,
                  profile: Profile | None = None) -> CoverageReport:
     """Evaluate every declaration of ``config`` over ``model`` with ``settings``."""
+    _check_group_attributes(model, settings.group_by)
     clauses = profile.clauses() if profile else {}
     declarations = []
     for declaration in config.declarations:

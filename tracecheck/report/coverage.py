@@ -21,7 +21,7 @@ from rich.padding import Padding
 from rich.table import Table
 from rich.text import Text
 
-from tracecheck.audit import CoverageReport, DeclarationReport, MatrixRow
+from tracecheck.audit import UNSET, CoverageReport, DeclarationReport, MatrixRow
 from tracecheck.report import RenderOptions, renderer
 from tracecheck.report.console import to_text
 
@@ -35,6 +35,7 @@ __all__ = [
     "SUMMARY_COLUMNS",
     "fmt_percent",
     "evidence_lines",
+    "shown_groups",
 ]
 
 BOM = "\ufeff"
@@ -42,6 +43,13 @@ MATRIX_COLUMNS = ("requirement", "name", "satisfied_by", "allocated_to", "verifi
 SUMMARY_COLUMNS = ("declaration", "direction", "group_attribute", "group_value", "covered", "total", "percent",
                    "passing_covered", "passing_percent", "uncovered")
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def shown_groups(d: DeclarationReport):
+    """Groups worth showing: an attribute none of the declaration's elements carries
+    (integrity on tests, say) only repeats the total, so the views leave it out; the
+    JSON keeps it."""
+    return [(attribute, values) for attribute, values in d.groups.items() if set(values) != {UNSET}]
 
 
 def fmt_percent(value: float | None) -> str:
@@ -135,7 +143,8 @@ def evidence_lines(report: CoverageReport) -> list[tuple[str, str]]:
     lines.append(("counts", f"{counts['elements']} elements ({kinds}), {counts['links']} links"))
     if e["group_by"]:
         lines.append(("grouped by", ", ".join(e["group_by"])))
-    lines.append(("test result attribute", e["result_attribute"]))
+    results = ", ".join(f"{k} {n}" for k, n in counts["test_results"].items()) or "no tests"
+    lines.append(("test results", f"attribute {e['result_attribute']!r}: {results}"))
     if "matrix" in e:
         lines.append(("matrix", f"{e['matrix']['path']} SHA-256 {e['matrix']['sha256']}"))
     if "generated" in e:
@@ -166,6 +175,23 @@ def _declaration_table(report: CoverageReport) -> Table:
     return table
 
 
+def _group_table(report: CoverageReport) -> Table | None:
+    rows = [(d.name, attribute, value, c) for d in report.declarations
+            for attribute, values in shown_groups(d) for value, c in values.items()]
+    if not rows:
+        return None
+    table = Table(show_edge=False, pad_edge=False, box=None, header_style="bold")
+    for column, justify in (("declaration", "left"), ("by", "left"), ("value", "left"),
+                            ("covered", "right"), ("percent", "right")):
+        table.add_column(column, justify=justify)
+    previous = None
+    for name, attribute, value, c in rows:
+        shown = "" if (name, attribute) == previous else name
+        table.add_row(shown, attribute if shown else "", value, f"{c.covered}/{c.total}", fmt_percent(c.percent))
+        previous = (name, attribute)
+    return table
+
+
 def _gap_text(report: CoverageReport) -> list:
     items: list = []
     for direction in ("forward", "backward"):
@@ -183,10 +209,9 @@ def coverage_text(report: CoverageReport, options: RenderOptions) -> str:
     items: list = [Text(f"tracecheck coverage {report.evidence['model']['path']}", style="bold"), Text("")]
     items.append(_declaration_table(report))
     if not options.quiet:
-        for d in report.declarations:
-            for attribute, values in d.groups.items():
-                row = "  ".join(f"{v} {c.covered}/{c.total} {fmt_percent(c.percent)}" for v, c in values.items())
-                items.append(Text(f"  {d.name} by {attribute}: {row}", overflow="fold"))
+        groups = _group_table(report)
+        if groups is not None:
+            items += [Text(""), groups]
         items.append(Text(""))
         items += _gap_text(report)
         items.append(Text(""))
@@ -223,7 +248,7 @@ def coverage_markdown(report: CoverageReport, options: RenderOptions) -> str:
                      f"{fmt_percent(d.counts.percent)} | {passing} |")
     lines.append("")
     for d in report.declarations:
-        for attribute, values in d.groups.items():
+        for attribute, values in shown_groups(d):
             lines += [f"### `{_md(d.name)}` by {_md(attribute)}", "", "| value | covered | total | percent |",
                       "|---|---:|---:|---:|"]
             lines += [f"| {_md(v)} | {c.covered} | {c.total} | {fmt_percent(c.percent)} |" for v, c in values.items()]

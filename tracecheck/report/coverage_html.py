@@ -14,7 +14,13 @@ from html import escape
 
 from tracecheck.audit import Counts, CoverageReport, DeclarationReport
 from tracecheck.report import RenderOptions, renderer
-from tracecheck.report.coverage import evidence_lines, fmt_percent, matrix_header, verdict
+from tracecheck.report.coverage import (
+    evidence_lines,
+    fmt_percent,
+    matrix_header,
+    shown_groups,
+    verdict,
+)
 
 __all__ = ["coverage_html"]
 
@@ -135,7 +141,7 @@ def _summary(report: CoverageReport) -> str:
 def _groups(report: CoverageReport) -> str:
     parts = []
     for d in report.declarations:
-        for attribute, values in d.groups.items():
+        for attribute, values in shown_groups(d):
             rows = "".join(
                 f'<tr><td>{escape(value)}</td><td class="n">{c.covered}</td><td class="n">{c.total}</td>'
                 f'<td class="n">{fmt_percent(c.percent)}</td><td>{_bar(c)}</td></tr>'
