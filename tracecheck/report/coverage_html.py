@@ -27,18 +27,18 @@ __all__ = ["coverage_html"]
 _CSS = """
 *{box-sizing:border-box}
 body{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;margin:1.5em 2em;color:#1d232a;max-width:90em;line-height:1.35}
-h1{font-size:1.45em;margin:.2em 0 .5em}h2{font-size:1.15em;margin:1.6em 0 .4em;border-bottom:1px solid #d5dae0}
+h1{font-size:1.45em;margin:.2em 0 .5em}h2{font-size:1.1em;margin:1.1em 0 .35em;border-bottom:1px solid #d5dae0}
 h3{font-size:1em;margin:1em 0 .3em}
-.caution{border-left:5px solid #8a5a00;background:#fdf6e7;padding:.5em 1em;margin:.5em 0}
-.profile{border-left:5px solid #3d5a80;background:#eef3f8;padding:.5em 1em;margin:.5em 0}
+.caution{border-left:5px solid #8a5a00;background:#fdf6e7;padding:.35em .8em;margin:.4em 0;font-size:.92em}
+.profile{border-left:5px solid #3d5a80;background:#eef3f8;padding:.35em .8em;margin:.4em 0;font-size:.92em}
 .verdict{font-weight:700;padding:.3em .6em;display:inline-block}.verdict.fail{background:#fbe4e1;color:#8f1d12}
 .verdict.pass{background:#e2f2e6;color:#175c2c}
 table{border-collapse:collapse;margin:.4em 0 1em}th,td{border:1px solid #cfd6dd;padding:.2em .55em;text-align:left;vertical-align:top}
-th{background:#eef1f4;white-space:nowrap}td.decl{min-width:24em}.small{font-size:.85em}td.n{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
-table.evidence{font-size:.85em}table.evidence td:first-child{color:#52606d;white-space:nowrap}
+th{background:#eef1f4;white-space:nowrap}td.decl{min-width:16em}#summary-table{width:100%}#summary-table th{white-space:normal}.small{font-size:.85em}td.n{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
+table.evidence{font-size:.8em;line-height:1.2;width:100%}table.evidence td{padding:.1em .5em}table.evidence td.k{color:#52606d;white-space:nowrap}table.evidence td{width:40%}table.evidence td.k{width:10%}
 table.evidence td{word-break:break-all}
 th.sort{cursor:pointer}th.sort:after{content:" \\2195";color:#8795a1}
-.bar{width:14em;height:1em;background:#e4e8ec;border:1px solid #b8c2cc;position:relative}
+.bar{width:9em;height:1em;background:#e4e8ec;border:1px solid #b8c2cc;position:relative}
 .bar>span{display:block;height:100%;background:#3d5a80}
 .bar.passing>span{background:#5b8c5a}
 code,.id{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:.92em}
@@ -117,13 +117,18 @@ def _id(report: CoverageReport, element_id: str) -> str:
 
 
 def _evidence(report: CoverageReport) -> str:
-    rows = "".join(f"<tr><td>{escape(label)}</td><td>{escape(value)}</td></tr>" for label, value in evidence_lines(report))
+    # Two label/value pairs per row keep the block short enough that the summary
+    # below it still shows in the first screen.
+    cells = [f'<td class="k">{escape(label)}</td><td>{escape(value)}</td>' for label, value in evidence_lines(report)]
+    if len(cells) % 2:
+        cells.append('<td class="k"></td><td></td>')
+    rows = "".join(f"<tr>{cells[n]}{cells[n + 1]}</tr>" for n in range(0, len(cells), 2))
     return f'<table class="evidence" id="evidence"><tbody>{rows}</tbody></table>'
 
 
 def _summary(report: CoverageReport) -> str:
     head = ("<thead><tr><th>declaration</th><th>direction</th><th>covered</th><th>total</th><th>percent</th>"
-            "<th>linked coverage</th><th>passing %</th><th>covered by passing tests</th></tr></thead>")
+            "<th>linked coverage</th><th>passing tests</th><th>coverage by passing tests</th></tr></thead>")
     rows = []
     for d in report.declarations:
         c = d.counts
@@ -209,8 +214,7 @@ def coverage_html(report: CoverageReport, options: RenderOptions) -> str:
     profile = ""
     if e["profile"] is not None:
         p = e["profile"]
-        profile = (f'<div class="profile"><strong>Profile {escape(p["name"])}</strong> ({escape(p["standard"])}). '
-                   f"{escape(p['note'])}</div>")
+        profile = f'<div class="profile"><strong>Profile {escape(p["name"])}.</strong> {escape(p["note"])}</div>'
     result = verdict(report)
     verdict_html = f'<p class="verdict {"fail" if report.exit_code else "pass"}">{escape(result)}</p>' if result else ""
     return (
