@@ -68,6 +68,10 @@ class Settings:
     profile: str | None = None
     timestamp: bool = False
     fail_under: float | None = None
+    # True when the groups came from the command line: an attribute that no element
+    # carries is then refused as a likely typo; from configuration it is accepted, as
+    # an early stage may not carry the attribute yet.
+    strict_groups: bool = False
 
 
 def _names(value: Any, key: str, where: str) -> tuple[str, ...]:
@@ -104,7 +108,7 @@ def settings_from(
         raise ConfigError(f"{where}: report.coverage.profile: give a profile name.")
     if fail_under is not None and not 0 <= fail_under <= 100:
         raise UsageError(f"--fail-under {fail_under}: give a percentage from 0 to 100.")
-    return Settings(tuple(dict.fromkeys(by)), attribute, chosen, timestamp, fail_under)
+    return Settings(tuple(dict.fromkeys(by)), attribute, chosen, timestamp, fail_under, bool(group_by))
 
 
 def apply_profile(config: Config, name: str | None) -> tuple[Config, Profile | None]:
@@ -425,7 +429,8 @@ def _test_results(model: Model, attribute: str) -> dict[str, int]:
 def build_report(source: Source, model: Model, config: Config, settings: Settings,
                  profile: Profile | None = None) -> CoverageReport:
     """Evaluate every declaration of ``config`` over ``model`` with ``settings``."""
-    _check_group_attributes(model, settings.group_by)
+    if settings.strict_groups:
+        _check_group_attributes(model, settings.group_by)
     clauses = profile.clauses() if profile else {}
     declarations = []
     for declaration in config.declarations:
