@@ -434,3 +434,19 @@ def test_html_is_self_contained(tmp_path):
     assert "@media print" in page
     assert tree.xpath("//*[@id='summary']") and tree.xpath("//table[@id='matrix']//tbody/tr")
     assert len(tree.xpath("//table[@id='matrix']//tbody/tr")) == 4
+
+
+def test_json_output_validates_against_the_published_schema(tmp_path):
+    import jsonschema
+
+    from tests.conftest import ROOT
+
+    # jsonschema as the reference validator of JSON Schema draft 2020-12.
+    schema = json.loads((ROOT / "schemas" / "coverage.schema.json").read_text())
+    jsonschema.Draft202012Validator.check_schema(schema)
+    path = str(worked_example(tmp_path))
+    for args in ([], ["--profile", "road-vehicles"], ["--matrix", str(tmp_path / "m.csv"), "--timestamp"]):
+        doc = json.loads(run("coverage", "--format", "json", "--by", "integrity", *args, path).stdout)
+        jsonschema.Draft202012Validator(schema).validate(doc)
+    broken = {**doc, "declarations": [{**doc["declarations"][0], "percent": "75.0"}]}
+    assert list(jsonschema.Draft202012Validator(schema).iter_errors(broken))
