@@ -221,9 +221,10 @@ def coverage_text(report: CoverageReport, options: RenderOptions) -> str:
         for label, value in evidence_lines(report):
             grid.add_row(label, value)
         items += [Text("Evidence", style="bold"), Padding(grid, (0, 0, 0, 2)), Text("")]
-        if report.evidence["profile"] is not None:
-            items.append(Text(report.evidence["profile"]["note"]))
-        items.append(Text(f"Caution: {report.evidence['caution']}"))
+    # The profile note and the caution go with every view, --quiet included.
+    if report.evidence["profile"] is not None:
+        items.append(Text(report.evidence["profile"]["note"]))
+    items.append(Text(f"Caution: {report.evidence['caution']}"))
     if verdict(report):
         items.append(Text(verdict(report), style="bold red" if report.exit_code else "bold green"))
     return to_text(items, options)
@@ -241,11 +242,14 @@ def coverage_markdown(report: CoverageReport, options: RenderOptions) -> str:
         lines += [f"> **Profile {_md(e['profile']['name'])}.** {_md(e['profile']['note'])}", ""]
     if verdict(report):
         lines += [f"**{_md(verdict(report))}**", ""]
-    lines += ["| declaration | direction | covered | total | percent | passing tests |", "|---|---|---:|---:|---:|---:|"]
+    clauses = any(d.clause for d in report.declarations)
+    lines += ["| declaration | direction | covered | total | percent | passing tests |" + (" clause |" if clauses else ""),
+              "|---|---|---:|---:|---:|---:|" + ("---|" if clauses else "")]
     for d in report.declarations:
         passing = "-" if d.passing is None else f"{d.passing.covered} ({fmt_percent(d.passing.percent)})"
+        clause = f" {_md(d.clause or '')} |" if clauses else ""
         lines.append(f"| `{_md(d.name)}` | {d.direction} | {d.counts.covered} | {d.counts.total} | "
-                     f"{fmt_percent(d.counts.percent)} | {passing} |")
+                     f"{fmt_percent(d.counts.percent)} | {passing} |{clause}")
     lines.append("")
     for d in report.declarations:
         for attribute, values in shown_groups(d):
