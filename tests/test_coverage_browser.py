@@ -110,3 +110,15 @@ def test_the_check_catches_a_script_error(tmp_path):
     done = chromium(page, tmp_path, "--dump-dom")
     assert root_attributes(done.stdout).get("data-script-errors") == "1"
     assert "Uncaught" in done.stderr
+
+
+def test_the_report_prints(tmp_path):
+    # The print stylesheet: chromium's own print path must produce a multi-page PDF
+    # (PDF 1.x, ISO 32000: a file starts with %PDF and has one /Type /Page per page).
+    page = report_page(tmp_path)
+    pdf = tmp_path / "report.pdf"
+    done = chromium(page, tmp_path, f"--print-to-pdf={pdf}", "--no-pdf-header-footer")
+    assert done.returncode == 0 and pdf.is_file(), done.stderr[-2000:]
+    data = pdf.read_bytes()
+    assert data.startswith(b"%PDF-")
+    assert len(re.findall(rb"/Type\s*/Page[^s]", data)) > 1

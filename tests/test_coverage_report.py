@@ -454,3 +454,24 @@ def test_json_output_validates_against_the_published_schema(tmp_path):
         jsonschema.Draft202012Validator(schema).validate(doc)
     broken = {**doc, "declarations": [{**doc["declarations"][0], "percent": "75.0"}]}
     assert list(jsonschema.Draft202012Validator(schema).iter_errors(broken))
+
+
+def test_demo_writes_the_qualification_audit(tmp_path):
+    target = tmp_path / "demo"
+    result = run("demo", str(target))
+    assert result.exit_code == 0, result.output
+    reports = target / "reports"
+    doc = json.loads((reports / "coverage.json").read_text())
+    evidence = doc["evidence"]
+    assert evidence["model"]["stage"] == "qualification"
+    assert evidence["model"]["git"]["commit"] == git(target, "rev-parse", "qualification^{commit}").strip()
+    assert evidence["model"]["git"]["dirty"] is False  # reports/ is ignored by the demo repository
+    assert evidence["matrix"]["sha256"] == hashlib.sha256((reports / "matrix.csv").read_bytes()).hexdigest()
+    got = {d["name"]: d for d in doc["declarations"]}
+    # The planted defects of tracecheck/demo/stages.py at qualification: HAZ-006
+    # unmitigated, REQ-SW-040's verifying link removed (its second test verifies nothing).
+    assert got["hazard-mitigated"]["uncovered"] == ["HAZ-006"]
+    assert got["test-verifies"]["uncovered"] == ["TST-SW-040-2"]
+    assert "REQ-SW-040" in got["high-integrity-verified-twice"]["uncovered"]
+    assert (reports / "coverage.html").read_text().startswith("<!DOCTYPE html>")
+    assert "hazard-mitigated: 5/6 83.3%" in result.stdout
