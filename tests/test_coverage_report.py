@@ -410,6 +410,7 @@ def test_bad_input_is_one_message_and_exit_2(tmp_path):
         (["--fail-under", "150", path], "--fail-under"),
         (["--profile", "shipbuilding", path], "unknown profile"),
         (["--matrix", "-", path], "--matrix needs a file name"),
+        (["--matrix", "same.csv", "-o", "./same.csv", path], "name the same file"),
         ([str(tmp_path / "missing.json")], "no such file"),
         (["--by", "integrty", path], "no element carries the attribute 'integrty'"),
     ]

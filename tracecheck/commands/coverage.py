@@ -67,6 +67,8 @@ def run(
 ) -> int:
     streams = streams or Streams.default()
     options = options or RenderOptions()
+    if matrix and output and output != "-" and Path(matrix).resolve() == Path(output).resolve():
+        raise UsageError(f"{matrix}: --matrix and -o name the same file; give the matrix its own.")
     report = coverage_report(
         spec, config_option=config_option, input_format=input_format, group_by=group_by,
         result_attribute=result_attribute, profile=profile, timestamp=timestamp,
