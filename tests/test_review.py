@@ -71,6 +71,13 @@ def test_accept_all_writes_a_sorted_ledger_at_the_repository_root(tmp_path):
     assert {r["accepted_by"] for r in document["reviews"]} == {"A. Assessor"}
     assert {r["accepted_on"] for r in document["reviews"]} == {"2026-11-30"}
     assert model.read_bytes() == before  # the model export is never modified
+    # jsonschema as the reference validator, with the ledger's published schema.
+    import jsonschema
+
+    from tests.conftest import ROOT
+
+    schema = json.loads((ROOT / "schemas" / "reviews.schema.json").read_text())
+    jsonschema.Draft202012Validator(schema).validate(document)
     assert stale_findings(model) == []
     # Accepting again records nothing and leaves the file byte for byte.
     saved = ledger.read_bytes()
