@@ -476,3 +476,21 @@ def test_demo_writes_the_qualification_audit(tmp_path):
     assert "REQ-SW-040" in got["high-integrity-verified-twice"]["uncovered"]
     assert (reports / "coverage.html").read_text().startswith("<!DOCTYPE html>")
     assert "hazard-mitigated: 5/6 83.3%" in result.stdout
+
+
+def test_coverage_and_check_agree_on_the_gaps(tmp_path):
+    # The coverage rule of `check` and the report share one evaluation; hold them to it.
+    path = tmp_path / "thread.json"
+    from tracecheck.demo.stages import stage_bytes
+
+    path.write_bytes(stage_bytes("detailed-design"))
+    report = json.loads(run("coverage", "--format", "json", str(path)).stdout)
+    found = json.loads(run("check", "--format", "json", str(path)).stdout)["findings"]
+    from_check: dict[str, list[str]] = {}
+    for finding in found:
+        if finding["rule"] == "coverage":
+            from_check.setdefault(finding["declaration"], []).extend(finding["elements"])
+    from_report = {d["name"]: d["uncovered"] for d in report["declarations"] if d["uncovered"]}
+    assert {k: sorted(v) for k, v in from_check.items()} == from_report
+    text = run("coverage", str(path)).stdout
+    assert "\x1b[" not in text  # piped: plain text
