@@ -494,3 +494,18 @@ def test_coverage_and_check_agree_on_the_gaps(tmp_path):
     assert {k: sorted(v) for k, v in from_check.items()} == from_report
     text = run("coverage", str(path)).stdout
     assert "\x1b[" not in text  # piped: plain text
+
+
+def test_html_escapes_model_text(tmp_path):
+    from lxml import html as lxml_html
+
+    hostile = '<img src=x onerror="alert(1)"></script>'
+    path = write_thread(tmp_path / "t.json", [
+        {"id": "REQ-<b>1</b>", "kind": "requirement", "name": hostile, "attributes": {"integrity": hostile}},
+        {"id": "TST-1", "kind": "test", "attributes": {"result": '" onmouseover="x'}},
+    ], [{"source": "TST-1", "target": "REQ-<b>1</b>", "relation": "verifies"}])
+    page = run("coverage", "--format", "html", "--by", "integrity", str(path)).stdout
+    tree = lxml_html.fromstring(page)
+    assert tree.xpath("//img") == [] and tree.xpath("//b") == [] and len(tree.xpath("//script")) == 1
+    assert not tree.xpath("//@onmouseover") and not tree.xpath("//@onerror")
+    assert hostile in tree.text_content()
