@@ -45,7 +45,7 @@ code,.id{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:.92em}
 ul.ids{columns:16em;margin:.2em 0 .8em;padding-left:1.2em}
 .r-pass{color:#175c2c}.r-fail{color:#8f1d12;font-weight:600}.r-blocked,.r-not-run,.r-unset{color:#6b5200}
 input.filter{font:inherit;padding:.2em .4em;width:22em;margin:.3em 0}
-.muted{color:#52606d}
+.muted{color:#52606d}.t{white-space:nowrap}
 @media print{
  body{margin:0;max-width:none;font-size:9.5pt}input.filter{display:none}th.sort:after{content:""}
  tr{break-inside:avoid}h2{break-after:avoid}.hidden-by-filter{display:table-row !important}
@@ -193,7 +193,7 @@ def _matrix(report: CoverageReport) -> str:
     header = "".join(f"<th>{escape(c)}</th>" for c in matrix_header(report))
     rows = []
     for row in report.matrix:
-        tests = "<br>".join(f'{_id(report, t)} <span class="r-{escape(r.strip("()"))}">{escape(r)}</span>'
+        tests = "<br>".join(f'<span class="t">{_id(report, t)} <span class="r-{escape(r.strip("()"))}">{escape(r)}</span></span>'
                             for t, r in row.verified_by)
         cells = [_id(report, row.requirement), escape(row.name), *(escape(a) for a in row.attributes),
                  "<br>".join(_id(report, s) for s in row.satisfied_by),
