@@ -143,3 +143,11 @@ def test_outside_a_repository_the_ledger_sits_beside_the_model(tmp_path):
     model.write_text(json.dumps(thread(ELEMENTS, LINKS)), encoding="utf-8")
     assert run("review", "accept", str(model), "--all", "--by", "A", "--on", "2026-11-30").exit_code == 0
     assert (tmp_path / ".tracecheck" / "reviews.json").is_file()
+
+
+def test_a_ledger_above_the_repository_is_not_used(tmp_path):
+    model = repository(tmp_path)
+    outside = tmp_path / ".tracecheck"
+    outside.mkdir()
+    (outside / "reviews.json").write_text("not json", encoding="utf-8")
+    assert stale_findings(model) == []  # tmp_path/.tracecheck lies above repo/.git

@@ -91,12 +91,18 @@ def ledger_location(model_path: Path | None) -> Path:
 
 
 def find_ledger(start: Path) -> Path | None:
-    """The nearest ``.tracecheck/reviews.json`` in ``start`` or a folder above it."""
+    """The nearest ``.tracecheck/reviews.json`` in ``start`` or a folder above it.
+
+    The search stops at the root of the repository around ``start`` (a folder holding
+    ``.git``), so a ledger outside the repository never judges its models.
+    """
     folder = start.resolve()
     for candidate in (folder, *folder.parents):
         path = candidate / LEDGER
         if path.is_file():
             return path
+        if (candidate / ".git").exists():
+            break
     return None
 
 
