@@ -204,6 +204,84 @@ def diff(ctx: click.Context, old: str, new: str | None, fmt: str, output: str | 
     )
 
 
+@cli.command()
+@click.argument("model")
+@_common(["text", "json", "markdown", "csv", "html"])
+@click.option("--by", "group_by", multiple=True, metavar="ATTRIBUTE",
+              help="Also count per value of this attribute (repeatable; default from [report.coverage] by).")
+@click.option("--matrix", type=click.Path(dir_okay=False), default=None,
+              help="Also write the traceability matrix as CSV to FILE.")
+@click.option("--profile", default=None, metavar="NAME",
+              help="Declarations following a standard's trace obligations: airborne-software, road-vehicles, medical-software.")
+@click.option("--result-attribute", default=None, metavar="NAME",
+              help="Test attribute holding pass/fail/blocked/not-run (default: result).")
+@click.option("--fail-under", type=float, default=None, metavar="PERCENT",
+              help="Exit 1 when a declaration's coverage is below PERCENT.")
+@click.option("--timestamp", is_flag=True, help="Record the time of the run in the evidence (reruns then differ).")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def coverage(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
+             quiet: bool, no_color: bool, debug: bool, group_by: tuple[str, ...], matrix: str | None,
+             profile: str | None, result_attribute: str | None, fail_under: float | None,
+             timestamp: bool, input_format: str | None) -> int:
+    """Coverage of MODEL per declaration and group, with gaps, test results and evidence.
+
+    Exit 0 unless --fail-under is given and a declaration is below it (then 1).
+    """
+    from tracecheck.commands import coverage as command
+
+    return command.run(
+        model, fmt=fmt, output=output, matrix=matrix, config_option=config_option,
+        input_format=input_format, group_by=group_by, result_attribute=result_attribute,
+        profile=profile, timestamp=timestamp, fail_under=fail_under,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
+@cli.group()
+def review() -> None:
+    """Record reviewed trace links in .tracecheck/reviews.json and list the stale ones.
+
+    A link is stale when an end it joins (kind, name, text or attributes) has changed
+    since it was accepted. The ledger lives at the root of the model's repository.
+    """
+
+
+@review.command("accept")
+@click.argument("model")
+@click.argument("links", nargs=-1)
+@click.option("--all", "all_links", is_flag=True, help="Accept every link of MODEL whose ends exist.")
+@click.option("--by", default=None, metavar="NAME", help="Who accepts (default: git's user.name).")
+@click.option("--on", default=None, metavar="YYYY-MM-DD", help="The date of the review (default: today, UTC).")
+@click.option("--config", "config_option", type=click.Path(dir_okay=False), default=None,
+              help="Configuration file (default: found upwards from the model).")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.option("--debug", is_flag=True, hidden=True)
+def review_accept(model: str, links: tuple[str, ...], all_links: bool, by: str | None, on: str | None,
+                  config_option: str | None, input_format: str | None, debug: bool) -> int:
+    """Accept LINKS of MODEL, each written 'SOURCE RELATION TARGET' (one argument)."""
+    from tracecheck.commands import review as command
+
+    return command.accept(model, links, all_links=all_links, by=by, on=on,
+                          config_option=config_option, input_format=input_format)
+
+
+@review.command("status")
+@click.argument("model")
+@_common(["text", "json"])
+@click.option("--fail-on-stale", is_flag=True, help="Exit 1 when a link is stale.")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def review_status(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
+                  quiet: bool, no_color: bool, debug: bool, fail_on_stale: bool, input_format: str | None) -> int:
+    """List the links of MODEL that changed since review, and how many are current."""
+    from tracecheck.commands import review as command
+
+    return command.status(model, fmt=fmt, output=output, fail_on_stale=fail_on_stale,
+                          config_option=config_option, input_format=input_format,
+                          options=_render_options(ctx, quiet, no_color, output))
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 

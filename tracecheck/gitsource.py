@@ -26,6 +26,9 @@ __all__ = [
     "tag",
     "create_branch",
     "checkout",
+    "find_root",
+    "worktree_state",
+    "user_name",
 ]
 
 
@@ -127,6 +130,53 @@ def is_dirty(cwd: Path, path: Path | None = None) -> bool:
             return repo.is_dirty(untracked_files=True)
         rel = _tree_path(repo, str(path), cwd)
         return repo.is_dirty(path=rel) or rel in repo.untracked_files
+
+
+def find_root(path: Path) -> Path | None:
+    """Work-tree root of the repository around ``path``, or ``None`` (never an error).
+
+    For evidence and the review ledger a model outside any repository is normal, so
+    this answers quietly where :func:`open_repo` would raise.
+    """
+    import git
+
+    folder = path if path.is_dir() else path.parent
+    try:
+        repo = git.Repo(folder, search_parent_directories=True)
+    except (git.InvalidGitRepositoryError, git.NoSuchPathError):
+        return None
+    return Path(repo.working_tree_dir).resolve() if repo.working_tree_dir else None
+
+
+def worktree_state(path: Path) -> dict | None:
+    """Where a model file stands in its repository, for an audit's evidence block.
+
+    ``{"commit": HEAD id or None, "path": path in the repository, "dirty": the work
+    tree has any change (untracked files included), "modified": this file differs
+    from HEAD or is untracked}``; ``None`` outside a repository.
+    """
+    root = find_root(path.resolve())
+    if root is None:
+        return None
+    absolute = path.resolve()
+    return {
+        "commit": head_commit(root),
+        "path": absolute.relative_to(root).as_posix(),
+        "dirty": is_dirty(root),
+        "modified": is_dirty(root, absolute),
+    }
+
+
+def user_name(cwd: Path) -> str | None:
+    """``user.name`` from git configuration as seen from ``cwd``; ``None`` if unset."""
+    import git
+
+    folder = cwd if cwd.is_dir() else cwd.parent
+    try:
+        value = git.Git(str(folder)).config("--get", "user.name")
+    except Exception:  # unset or no git at all: only means "no name known"
+        return None
+    return value.strip() or None
 
 
 # --- writing, used only by the demo and tests to build repositories -----------------
