@@ -26,6 +26,9 @@ __all__ = [
     "tag",
     "create_branch",
     "checkout",
+    "default_branch",
+    "repo_relative",
+    "find_root",
 ]
 
 
@@ -127,6 +130,36 @@ def is_dirty(cwd: Path, path: Path | None = None) -> bool:
             return repo.is_dirty(untracked_files=True)
         rel = _tree_path(repo, str(path), cwd)
         return repo.is_dirty(path=rel) or rel in repo.untracked_files
+
+
+def default_branch(cwd: Path) -> str | None:
+    """The branch changes go into: ``origin/HEAD``'s target, else ``main``, else ``master``."""
+    repo = open_repo(cwd)
+    try:
+        target = repo.git.rev_parse("--abbrev-ref", "origin/HEAD").strip()
+    except Exception:  # no remote, or origin/HEAD not set: fall through to local names
+        target = ""
+    candidates = [target] if target and target != "origin/HEAD" else []
+    for name in [*candidates, "main", "master"]:
+        try:
+            repo.commit(name)
+            return name
+        except Exception:  # gitpython raises several unrelated types for a bad name
+            continue
+    return None
+
+
+def repo_relative(path: str, cwd: Path) -> str:
+    """``path`` (relative to ``cwd``) as a path from the repository root, POSIX style."""
+    return _tree_path(open_repo(cwd), path, cwd)
+
+
+def find_root(cwd: Path) -> Path | None:
+    """The work tree root of the repository containing ``cwd``, or ``None`` outside git."""
+    try:
+        return repo_root(cwd)
+    except GitError:
+        return None
 
 
 # --- writing, used only by the demo and tests to build repositories -----------------
