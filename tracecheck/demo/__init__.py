@@ -136,3 +136,12 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
 # Later capabilities (diff, gate, coverage, history, formats, embedding) add a step here:
 # a function (demo, out, options) -> list of report file names it wrote.
 _EXTRA_STEPS: list = []
+
+
+def _gate_step(demo, out, options) -> list[str]:
+    from tracecheck.demo.gate_step import gate_step
+
+    return gate_step(demo, out, options)
+
+
+_EXTRA_STEPS.append(_gate_step)
