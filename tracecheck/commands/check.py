@@ -54,5 +54,7 @@ def run(
     )
     emit(render("check", fmt, result, options), output, streams)
     if fmt == "github" and os.environ.get("GITHUB_STEP_SUMMARY"):
-        step_summary(render("check", "markdown", result, options), Path(os.environ["GITHUB_STEP_SUMMARY"]))
+        from tracecheck.report.gate import check_summary  # folded and capped, unlike the full view
+
+        step_summary(check_summary(result, options), Path(os.environ["GITHUB_STEP_SUMMARY"]))
     return result.exit_code

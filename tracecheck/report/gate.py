@@ -196,3 +196,18 @@ def gate_markdown(result: GateResult, options: RenderOptions) -> str:
     lines += review_markdown(result)
     lines += [f"_{CAUTION}_", ""]
     return "\n".join(lines)
+
+
+def check_summary(result: CheckResult, options: RenderOptions) -> str:
+    """The GitHub step summary of a ``check``: status first, findings folded and capped."""
+    from tracecheck.report.check import summary_line
+
+    origin = ", ".join(result.uris.get(i["path"], i["path"]) for i in result.inputs if i["role"] == "model")
+    lines = [f"## tracecheck check: {summary_line(result)}", "", f"Model: `{md_escape(origin)}`.", ""]
+    by_rule = result.summary()["by_rule"]
+    if by_rule:
+        lines += ["| rule | findings |", "|---|---:|", *[f"| `{r}` | {n} |" for r, n in by_rule.items()], ""]
+    lines += _finding_table(result, result.findings, "Findings")
+    lines += review_markdown(result)
+    lines += [f"_{CAUTION}_", ""]
+    return "\n".join(lines)
