@@ -238,3 +238,25 @@ def test_gate_run_from_a_subfolder_uses_repository_paths(repo):
     code, doc, _ = gate_json("thread.json")
     assert doc["gate"]["files"][0]["path"] == "model/thread.json"
     assert subjects(doc["findings"]) == NEW
+
+
+def test_forked_base_check_gives_the_same_report(repo, monkeypatch):
+    import tracecheck.gate
+
+    sequential = run("gate", "--format", "json", "model/thread.json").stdout
+    monkeypatch.setattr(tracecheck.gate, "FORK_MIN", 0)  # every modified model forks now
+    assert run("gate", "--format", "json", "model/thread.json").stdout == sequential
+
+
+def test_background_runs_in_a_child_and_falls_back_in_the_parent():
+    from tracecheck import background
+
+    if not hasattr(os, "fork") or (os.cpu_count() or 1) < 2:
+        pytest.skip("needs fork and two cores")
+    assert background.start(os.getpid).result() != os.getpid()
+    assert background.start(os.getpid, fork=False).result() == os.getpid()
+    # a child that cannot send its result (a lambda's closure over a pipe) is redone here
+    import threading
+
+    lock = threading.Lock()
+    assert background.start(lambda: lock).result() is lock

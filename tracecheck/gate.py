@@ -20,6 +20,7 @@ from collections import Counter
 from dataclasses import dataclass, field
 from typing import Any
 
+from tracecheck import background
 from tracecheck.check import CheckResult, input_info
 from tracecheck.config import Config
 from tracecheck.diff import diff_models
@@ -29,6 +30,9 @@ from tracecheck.rules.engine import Finding, run_rules, sort_key
 __all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "FILE_STATUSES"]
 
 FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
+# Models at least this large (elements + links) check their base side in a forked child
+# while the parent diffs; below it the fork costs more than it saves.
+FORK_MIN = 20_000
 
 
 @dataclass(frozen=True)
@@ -75,23 +79,44 @@ def _inputs(model: Model, data: bytes | None, config: Config, role: str) -> list
 
 
 def compare_file(sides: FileSides, config: Config) -> FileOutcome:
-    """Check both sides of one model file and compare their findings by fingerprint."""
+    """Check both sides of one model file and compare their findings by fingerprint.
+
+    For a large modified model the base side's rules run in a forked child while this
+    process checks head and diffs (:mod:`tracecheck.background`); the result is the same.
+    """
     status = _status(sides)
-    head = [] if sides.head is None else run_rules(sides.head, config)
     inputs = [] if sides.head is None else _inputs(sides.head, sides.head_data, config, "model")
     if status == "unchanged":
-        return FileOutcome(sides.path, status, head, [], [], None, inputs)
-    base = [] if sides.base is None else run_rules(sides.base, config)
+        return FileOutcome(sides.path, status, run_rules(sides.head, config), [], [], None, inputs)
+    pending = None
     if sides.base is not None:
-        inputs += _inputs(sides.base, sides.base_data, config, "base")
+        base_model = sides.base
+        pending = background.start(lambda: run_rules(base_model, config),
+                                   fork=status == "modified" and _big(base_model))
+        inputs += _inputs(base_model, sides.base_data, config, "base")
+    head = [] if sides.head is None else run_rules(sides.head, config)
+    diff = None if sides.head is None else _diff(sides, config)
+    base = [] if pending is None else pending.result()
     if status == "deleted":
         note = (f"{sides.path}: deleted on head; its {len(base)} finding(s) at base are not "
                 "counted as resolved (removing a model export fixes nothing).")
         return FileOutcome(sides.path, status, [], [], [], None, inputs, note)
+    return _outcome(sides, status, head, base, diff, inputs)
+
+
+def _big(model: Model) -> bool:
+    return len(model.elements) + len(model.links) >= FORK_MIN
+
+
+def _diff(sides: FileSides, config: Config) -> dict[str, Any]:
+    old = sides.base if sides.base is not None else Model([], [], origin=f"(absent):{sides.path}")
+    return diff_models(old, sides.head, config, with_checks=False, with_picture=False).summary()
+
+
+def _outcome(sides: FileSides, status: str, head: list[Finding], base: list[Finding],
+             diff: dict[str, Any] | None, inputs: list[dict[str, Any]]) -> FileOutcome:
     before = {f.fingerprint for f in base}
     after = {f.fingerprint for f in head}
-    old_model = sides.base if sides.base is not None else Model([], [], origin=f"(absent):{sides.path}")
-    diff = diff_models(old_model, sides.head, config, with_checks=False, with_picture=False).summary()
     return FileOutcome(
         sides.path,
         status,

@@ -32,6 +32,7 @@ __all__ = [
     "uri_of",
 ]
 
+# The schema's published address (from memory of the OASIS SARIF 2.1.0 errata01 page).
 SARIF_SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
 FINGERPRINT_KEY = "tracecheck/v1"
 # Annotations beyond this number are summarised in one closing line; CI systems show only
