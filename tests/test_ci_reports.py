@@ -247,3 +247,16 @@ def test_demo_gate_shows_one_new_and_one_resolved_finding(tmp_path, sarif_valida
     junit = etree.parse(str(reports / "gate.junit.xml")).getroot()
     assert junit.get("failures") == "1"
     assert "1 new finding" in result.output and "1 resolved" in result.output
+
+
+def test_sarif_uris_are_uri_references(tmp_path, sarif_validator):
+    (tmp_path / "tracecheck.toml").write_text(NO_DEFAULTS)
+    write_thread(tmp_path / "ferry model.json", [{"id": "REQ-1", "kind": "requirement"}], dangling(1))
+    doc = json.loads(run("check", "--format", "sarif", "ferry model.json").stdout)
+    location = doc["runs"][0]["results"][0]["locations"][0]["physicalLocation"]
+    assert location["artifactLocation"]["uri"] == "ferry%20model.json"  # RFC 3986: no raw space
+    data = (tmp_path / "ferry model.json").read_bytes()
+    result = CliRunner().invoke(cli, ["check", "--format", "sarif", "-"], input=data, catch_exceptions=False)
+    doc = json.loads(result.stdout)
+    assert not list(sarif_validator.iter_errors(doc))
+    assert "locations" not in doc["runs"][0]["results"][0]  # standard input has no file to point at

@@ -220,7 +220,7 @@ def diff(ctx: click.Context, old: str, new: str | None, fmt: str, output: str | 
 
 
 @cli.command()
-@click.argument("paths", nargs=-1, required=True)
+@click.argument("paths", nargs=-1, required=True, metavar="PATH...")
 @_common(["text", "json", "markdown", "sarif", "junit", "github"])
 @click.option("--base", default=None, metavar="REV",
               help="What the change goes into (default: origin/HEAD, else main, else master).")

@@ -13,6 +13,7 @@ import json
 import re
 from collections.abc import Iterable
 from typing import Any
+from urllib.parse import quote
 
 from lxml import etree
 
@@ -78,9 +79,10 @@ def _sarif_rule(info) -> dict[str, Any]:
 
 
 def _sarif_location(uri: str | None, line: int | None) -> list[dict[str, Any]]:
-    if uri is None:
+    if uri is None or uri == "<stdin>":
         return []
-    physical: dict[str, Any] = {"artifactLocation": {"uri": uri}}
+    # A URI reference: characters outside RFC 3986's path characters are %-encoded.
+    physical: dict[str, Any] = {"artifactLocation": {"uri": quote(uri, safe="/!$&'()*+,;=:@-._~")}}
     if line is not None and line >= 1:
         physical["region"] = {"startLine": line}
     return [{"physicalLocation": physical}]
