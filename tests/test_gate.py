@@ -97,6 +97,7 @@ def test_diverged_branches_compare_with_the_merge_base(repo):
     assert doc["gate"]["files"] == [{"path": "model/thread.json", "status": "modified", "new": 1,
                                      "resolved": 1, "diff": doc["gate"]["files"][0]["diff"]}]
     assert doc["gate"]["files"][0]["diff"]["elements"]["added"] == 1
+    assert "findings" not in doc["gate"]["files"][0]["diff"]  # the gate's own comparison is the one
     assert doc["summary"]["new"] == 1 and doc["summary"]["resolved"] == 1
 
 
