@@ -6,12 +6,15 @@ import hashlib
 import platform
 from collections import Counter
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from tracecheck import __version__
 from tracecheck.config import Config
 from tracecheck.model import Model
 from tracecheck.rules.engine import SEVERITY_RANK, Finding, run_rules
+
+if TYPE_CHECKING:
+    from tracecheck.waivers import WaiverReport
 
 __all__ = ["CheckResult", "check_model", "tool_info", "input_info", "at_or_above"]
 
@@ -49,6 +52,16 @@ class CheckResult:
     inputs: list[dict[str, Any]]
     fail_on: str = "error"
     tool: dict[str, Any] = field(default_factory=tool_info)
+    # Added by the gate capability; all optional so a plain check is unchanged.
+    waivers: WaiverReport | None = None  # what a waiver file accepted (waived findings)
+    baseline: dict[str, Any] | None = None  # an earlier report whose findings are not repeated
+    rule_ids: tuple[str, ...] = ()  # the rules that ran (SARIF and JUnit list them)
+    uris: dict[str, str] = field(default_factory=dict)  # origin -> path from the repository root
+    notes: tuple[str, ...] = ()  # things the user must know that are not findings
+
+    @property
+    def waived(self) -> list[tuple[Finding, Any]]:
+        return list(self.waivers.waived) if self.waivers else []
 
     @property
     def failing(self) -> list[Finding]:
@@ -66,7 +79,16 @@ class CheckResult:
             "by_rule": dict(sorted(Counter(f.rule for f in self.findings).items())),
             "fail_on": self.fail_on,
             "failed": bool(self.failing),
-        }
+        } | self._extra_summary()
+
+    def _extra_summary(self) -> dict[str, Any]:
+        extra: dict[str, Any] = {}
+        if self.waivers is not None:
+            extra["waived"] = len(self.waivers.waived)
+            extra["unused_waivers"] = len(self.waivers.unused)
+        if self.baseline is not None:
+            extra["in_baseline"] = self.baseline["matched"]
+        return extra
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -74,7 +96,20 @@ class CheckResult:
             "inputs": self.inputs,
             "findings": [f.to_json() for f in self.findings],
             "summary": self.summary(),
-        }
+        } | self._extra_json()
+
+    def _extra_json(self) -> dict[str, Any]:
+        from tracecheck.waivers import waived_json
+
+        extra: dict[str, Any] = {}
+        if self.waivers is not None:
+            extra["waived"] = [waived_json(f, w) for f, w in self.waivers.waived]
+            extra["waivers"] = self.waivers.to_json()
+        if self.baseline is not None:
+            extra["baseline"] = self.baseline
+        if self.notes:
+            extra["notes"] = list(self.notes)
+        return extra
 
 
 def check_model(model: Model, data: bytes, config: Config, *, fail_on: str = "error") -> CheckResult:

@@ -136,15 +136,27 @@ def _formats(command: str) -> list[str]:
     return formats_for(command)
 
 
+def _review_options(function: Callable) -> Callable:
+    """Waiver options that check and gate share."""
+    function = click.option("--today", "today_option", default=None, metavar="YYYY-MM-DD",
+                            help="Judge waiver expiry as of this date (also TRACECHECK_TODAY; default: the system date).")(function)
+    return click.option("--waivers", "waivers_option", type=click.Path(dir_okay=False), default=None,
+                        help="Waiver file (TOML; default: [gate] waivers in the configuration).")(function)
+
+
 @cli.command()
 @click.argument("model")
-@_common(["text", "json", "markdown"])
+@_common(["text", "json", "markdown", "sarif", "junit", "github"])
 @click.option("--fail-on", type=SEVERITY_CHOICE, default="error", show_default=True,
               help="Exit 1 when a finding has this severity or a higher one.")
 @click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.option("--baseline", type=click.Path(dir_okay=False), default=None,
+              help="An earlier 'check --format json' report; report only findings it does not list.")
+@_review_options
 @click.pass_context
 def check(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
-          quiet: bool, no_color: bool, debug: bool, fail_on: str, input_format: str | None) -> int:
+          quiet: bool, no_color: bool, debug: bool, fail_on: str, input_format: str | None,
+          baseline: str | None, waivers_option: str | None, today_option: str | None) -> int:
     """Check MODEL against the integrity rules and coverage declarations."""
     from tracecheck.commands import check as command
 
@@ -156,6 +168,9 @@ def check(ctx: click.Context, model: str, fmt: str, output: str | None, config_o
         input_format=input_format,
         fail_on=fail_on,
         options=_render_options(ctx, quiet, no_color, output),
+        baseline=baseline,
+        waivers_option=waivers_option,
+        today_option=today_option,
     )
 
 
@@ -234,6 +249,45 @@ def coverage(ctx: click.Context, model: str, fmt: str, output: str | None, confi
         model, fmt=fmt, output=output, matrix=matrix, config_option=config_option,
         input_format=input_format, group_by=group_by, result_attribute=result_attribute,
         profile=profile, timestamp=timestamp, fail_under=fail_under,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
+@cli.command()
+@click.argument("paths", nargs=-1, required=True, metavar="PATH...")
+@_common(["text", "json", "markdown", "sarif", "junit", "github"])
+@click.option("--base", default=None, metavar="REV",
+              help="What the change goes into (default: origin/HEAD, else main, else master).")
+@click.option("--head", default=None, metavar="REV", help="The change (default: the working tree).")
+@click.option("--exact-base", is_flag=True, help="Compare with --base itself, not its merge-base with head.")
+@click.option("--fail-on", type=SEVERITY_CHOICE, default="error", show_default=True,
+              help="Exit 1 when a new finding has this severity or a higher one.")
+@click.option("--input-format", default=None, help="Read the models as this format instead of detecting it.")
+@_review_options
+@click.pass_context
+def gate(ctx: click.Context, paths: tuple[str, ...], fmt: str, output: str | None, config_option: str | None,
+         quiet: bool, no_color: bool, debug: bool, base: str | None, head: str | None, exact_base: bool,
+         fail_on: str, input_format: str | None, waivers_option: str | None, today_option: str | None) -> int:
+    """Pre-merge gate: fail only on findings a change adds to the model files PATH...
+
+    Compares head with the merge-base of --base and head (as a pull request shows the
+    change) and reports findings new on head, findings resolved, and the diff summary.
+    Exit 1 when a new, unwaived finding is at or above --fail-on.
+    """
+    from tracecheck.commands import gate as command
+
+    return command.run(
+        list(paths),
+        base=base,
+        head=head,
+        exact_base=exact_base,
+        fmt=fmt,
+        output=output,
+        config_option=config_option,
+        input_format=input_format,
+        fail_on=fail_on,
+        waivers_option=waivers_option,
+        today_option=today_option,
         options=_render_options(ctx, quiet, no_color, output),
     )
 

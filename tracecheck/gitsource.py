@@ -29,6 +29,8 @@ __all__ = [
     "find_root",
     "worktree_state",
     "user_name",
+    "default_branch",
+    "repo_relative",
 ]
 
 
@@ -177,6 +179,28 @@ def user_name(cwd: Path) -> str | None:
     except Exception:  # unset or no git at all: only means "no name known"
         return None
     return value.strip() or None
+
+
+def default_branch(cwd: Path) -> str | None:
+    """The branch changes go into: ``origin/HEAD``'s target, else ``main``, else ``master``."""
+    repo = open_repo(cwd)
+    try:
+        target = repo.git.rev_parse("--abbrev-ref", "origin/HEAD").strip()
+    except Exception:  # no remote, or origin/HEAD not set: fall through to local names
+        target = ""
+    candidates = [target] if target and target != "origin/HEAD" else []
+    for name in [*candidates, "main", "master"]:
+        try:
+            repo.commit(name)
+            return name
+        except Exception:  # gitpython raises several unrelated types for a bad name
+            continue
+    return None
+
+
+def repo_relative(path: str, cwd: Path) -> str:
+    """``path`` (relative to ``cwd``) as a path from the repository root, POSIX style."""
+    return _tree_path(open_repo(cwd), path, cwd)
 
 
 # --- writing, used only by the demo and tests to build repositories -----------------

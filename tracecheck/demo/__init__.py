@@ -140,3 +140,12 @@ _EXTRA_STEPS: list = []
 from tracecheck.commands.coverage import demo_step as _coverage_step  # noqa: E402
 
 _EXTRA_STEPS.append(_coverage_step)
+
+
+def _gate_step(demo, out, options) -> list[str]:
+    from tracecheck.demo.gate_step import gate_step
+
+    return gate_step(demo, out, options)
+
+
+_EXTRA_STEPS.append(_gate_step)

@@ -63,6 +63,9 @@ def check_text(result: CheckResult, options: RenderOptions) -> str:
             for finding in findings:
                 table.add_row(_where(finding), finding.message)
             items += [Text(""), header, Padding(table, (0, 0, 0, 2))]
+        from tracecheck.report.gate import review_text
+
+        items += review_text(result)
         items.append(Text(""))
     verdict = summary_line(result)
     items.append(Text(verdict, style="bold red" if result.failing else "bold green"))
@@ -90,4 +93,7 @@ def check_markdown(result: CheckResult, options: RenderOptions) -> str:
             elements = ", ".join(f"`{md_escape(e)}`" for e in f.elements)
             lines.append(f"| {f.severity} | {md_escape(_where(f))} | {elements} | {md_escape(f.message)} |")
         lines.append("")
+    from tracecheck.report.gate import review_markdown
+
+    lines += review_markdown(result)
     return "\n".join(lines)

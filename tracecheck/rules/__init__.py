@@ -99,7 +99,7 @@ def describe(rule_id: str, *, severity: str, short: str, full: str, help: str, t
 
 def rules() -> dict[str, RuleInfo]:
     """All registered rules by id (importing the rule modules on first use)."""
-    from tracecheck.rules import coverage_rule, cycles, stale_link, structure  # noqa: F401
+    from tracecheck.rules import coverage_rule, cycles, stale_link, structure, waiver_rule  # noqa: F401
 
     return dict(sorted(_RULES.items()))
 

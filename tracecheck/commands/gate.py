@@ -1,0 +1,145 @@
+"""``tracecheck gate [--base REV] [--head REV] [--exact-base] PATH...``.
+
+Reads each model file at base and on head (a revision, or the working tree), compares
+their findings (:mod:`tracecheck.gate`), applies the waivers, and renders the result.
+The base is the merge-base of ``--base`` (default: the repository's default branch)
+and head, as a pull request shows the change; ``--exact-base`` takes REV itself.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from pathlib import Path
+
+from tracecheck import gitsource
+from tracecheck.commands.common import Streams, emit, resolve_config
+from tracecheck.commands.outcome import apply_review, step_summary
+from tracecheck.config import Config
+from tracecheck.errors import InputError, UsageError
+from tracecheck.formats import read_model
+from tracecheck.gate import FileSides, GateResult, compare_file, sorted_findings
+from tracecheck.report import RenderOptions, render
+from tracecheck.rules import rules
+
+__all__ = ["run", "choose_base"]
+
+
+def choose_base(base: str | None, head: str | None, exact: bool, cwd: Path) -> tuple[str, dict]:
+    """The base commit and a record of how it was chosen."""
+    target = base or gitsource.default_branch(cwd)
+    if target is None:
+        raise UsageError(
+            "gate: no --base given and no default branch found (tried origin/HEAD, main, "
+            "master); name what the change goes into with --base REV."
+        )
+    chosen = "--base" if base else "default branch"
+    target_commit = gitsource.resolve(target, cwd)
+    if exact:
+        how = f"{target} ({chosen}) itself, --exact-base"
+        return target_commit, {"rev": target, "commit": target_commit, "how": how}
+    head_ref = head or "HEAD"
+    commit = gitsource.merge_base(target, head_ref, cwd)
+    how = f"merge-base of {target} ({chosen}) and {head_ref}"
+    return commit, {"rev": target, "commit": commit, "how": how}
+
+
+def _worktree_bytes(root: Path, path: str) -> bytes | None:
+    file = root / path
+    if not file.exists():
+        return None
+    if file.is_dir():
+        raise InputError(f"{path}: is a folder; give the model export file.")
+    try:
+        return file.read_bytes()
+    except OSError as error:
+        raise InputError(f"{path}: cannot be read ({error.strerror or error}).") from None
+
+
+def _blob(rev: str, root: Path, path: str) -> bytes | None:
+    if gitsource.blob_id(rev, str(root / path), root) is None:
+        return None
+    return gitsource.read_blob(rev, str(root / path), root)
+
+
+def _read(data: bytes | None, origin: str, config: Config, input_format: str | None):
+    if data is None:
+        return None
+    return read_model(data, origin, input_format=input_format, options=config.section("formats"))
+
+
+def _sides(path: str, root: Path, base: str, head: str | None, config: Config,
+           input_format: str | None) -> FileSides:
+    head_data = _worktree_bytes(root, path) if head is None else _blob(head, root, path)
+    base_data = _blob(base, root, path)
+    if head_data is None and base_data is None:
+        where = "in the working tree" if head is None else f"at {head}"
+        raise InputError(f"{path}: exists neither {where} nor at the base {base[:12]}.")
+    head_origin = path if head is None else f"{head}:{path}"
+    head_model = _read(head_data, head_origin, config, input_format)
+    base_model = head_model if base_data == head_data else _read(
+        base_data, f"{base[:12]}:{path}", config, input_format)
+    return FileSides(path, base_model, head_model, base_data, head_data)
+
+
+def _paths(paths: list[str], cwd: Path) -> list[str]:
+    if not paths:
+        raise UsageError("gate: name at least one model file (PATH...).")
+    seen: dict[str, None] = {}
+    for path in paths:
+        seen.setdefault(gitsource.repo_relative(path, cwd), None)
+    return list(seen)
+
+
+def run(
+    paths: list[str],
+    *,
+    base: str | None = None,
+    head: str | None = None,
+    exact_base: bool = False,
+    fmt: str = "text",
+    output: str | None = None,
+    config_option: str | None = None,
+    input_format: str | None = None,
+    fail_on: str = "error",
+    waivers_option: str | None = None,
+    today_option: str | None = None,
+    options: RenderOptions | None = None,
+    streams: Streams | None = None,
+) -> int:
+    streams = streams or Streams.default()
+    options = options or RenderOptions()
+    cwd = Path.cwd()
+    root = gitsource.repo_root(cwd)
+    relative = _paths(paths, cwd)
+    head_commit = gitsource.resolve(head, cwd) if head else gitsource.head_commit(cwd)
+    base_commit, base_info = choose_base(base, head, exact_base, cwd)
+    streams.stderr.write(f"tracecheck gate: base is the {base_info['how']}: {base_commit[:12]}\n")
+    config = resolve_config(config_option, (root / relative[0]).parent)
+    outcomes = [compare_file(_sides(p, root, base_commit, head, config, input_format), config)
+                for p in relative]
+    old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
+    review = apply_review(
+        [f for o in outcomes for f in o.head_findings], config, cwd,
+        waivers_option=waivers_option, today_option=today_option, old=old,
+    )
+    standing = {id(f) for f in review.findings}
+    outcomes = [dataclasses.replace(o, new=[f for f in o.new if id(f) in standing]) for o in outcomes]
+    uris = {i["path"]: o.path for o in outcomes for i in o.inputs}
+    result = GateResult(
+        findings=review.findings,
+        inputs=[i for o in outcomes for i in o.inputs] + review.config_inputs(config),
+        fail_on=fail_on,
+        waivers=review.waivers,
+        rule_ids=tuple(r for r in rules() if r not in config.disabled),
+        uris=uris | review.uris(root),
+        notes=tuple(o.note for o in outcomes if o.note),
+        resolved=tuple(sorted_findings(f for o in outcomes for f in o.resolved)),
+        base=base_info,
+        head={"rev": head, "commit": head_commit, "worktree": head is None},
+        files=tuple(outcomes),
+    )
+    emit(render("gate", fmt, result, options), output, streams)
+    if fmt == "github" and os.environ.get("GITHUB_STEP_SUMMARY"):
+        step_summary(render("gate", "markdown", result, options), Path(os.environ["GITHUB_STEP_SUMMARY"]))
+    return result.exit_code

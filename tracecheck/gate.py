@@ -1,0 +1,158 @@
+"""The pre-merge gate: findings new on head and resolved since base, per model file.
+
+Both sides of each model file are checked under one configuration (head's: the rules
+a change will be judged by from now on). A finding is *new* when its fingerprint is
+absent from the same file at base, *resolved* when a base fingerprint is gone on head.
+
+File cases, decided here and documented in the README:
+
+- ``added`` (absent at base): every finding on head is new; the diff is against an
+  empty model.
+- ``deleted`` (absent on head): nothing is new; the base findings are **not** counted as
+  resolved, because removing a model export fixes nothing. A note says so.
+- ``unchanged`` (identical bytes): checked once; nothing new, nothing resolved, no diff.
+- ``modified``: both sides checked and diffed.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass, field
+from typing import Any
+
+from tracecheck import background
+from tracecheck.check import CheckResult, input_info
+from tracecheck.config import Config
+from tracecheck.diff import diff_models
+from tracecheck.model import Model
+from tracecheck.rules.engine import Finding, run_rules, sort_key
+
+__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "FILE_STATUSES"]
+
+FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
+# Models at least this large (elements + links) check their base side in a forked child
+# while the parent diffs; below it the fork costs more than it saves.
+FORK_MIN = 20_000
+
+
+@dataclass(frozen=True)
+class FileSides:
+    """One model file at base and on head (``None`` where it does not exist)."""
+
+    path: str  # from the repository root
+    base: Model | None
+    head: Model | None
+    base_data: bytes | None = None
+    head_data: bytes | None = None
+
+
+@dataclass(frozen=True)
+class FileOutcome:
+    path: str
+    status: str
+    head_findings: list[Finding]  # every finding on head (waivers are applied later)
+    new: list[Finding]
+    resolved: list[Finding]
+    diff: dict[str, Any] | None
+    inputs: list[dict[str, Any]]
+    note: str | None = None
+
+    def to_json(self) -> dict[str, Any]:
+        return {"path": self.path, "status": self.status, "new": len(self.new),
+                "resolved": len(self.resolved), "diff": self.diff}
+
+
+def _status(sides: FileSides) -> str:
+    if sides.base is None:
+        return "added"
+    if sides.head is None:
+        return "deleted"
+    if sides.base_data is not None and sides.base_data == sides.head_data:
+        return "unchanged"
+    return "modified"
+
+
+def _inputs(model: Model, data: bytes | None, config: Config, role: str) -> list[dict[str, Any]]:
+    entries = input_info(model, data or b"", config)
+    entries[0]["role"] = role
+    return [e for e in entries if e["role"] != "config"]
+
+
+def compare_file(sides: FileSides, config: Config) -> FileOutcome:
+    """Check both sides of one model file and compare their findings by fingerprint.
+
+    For a large modified model the base side's rules run in a forked child while this
+    process checks head and diffs (:mod:`tracecheck.background`); the result is the same.
+    """
+    status = _status(sides)
+    inputs = [] if sides.head is None else _inputs(sides.head, sides.head_data, config, "model")
+    if status == "unchanged":
+        return FileOutcome(sides.path, status, run_rules(sides.head, config), [], [], None, inputs)
+    pending = None
+    if sides.base is not None:
+        base_model = sides.base
+        pending = background.start(lambda: run_rules(base_model, config),
+                                   fork=status == "modified" and _big(base_model))
+        inputs += _inputs(base_model, sides.base_data, config, "base")
+    head = [] if sides.head is None else run_rules(sides.head, config)
+    diff = None if sides.head is None else _diff(sides, config)
+    base = [] if pending is None else pending.result()
+    if status == "deleted":
+        note = (f"{sides.path}: deleted on head; its {len(base)} finding(s) at base are not "
+                "counted as resolved (removing a model export fixes nothing).")
+        return FileOutcome(sides.path, status, [], [], [], None, inputs, note)
+    return _outcome(sides, status, head, base, diff, inputs)
+
+
+def _big(model: Model) -> bool:
+    return len(model.elements) + len(model.links) >= FORK_MIN
+
+
+def _diff(sides: FileSides, config: Config) -> dict[str, Any]:
+    old = sides.base if sides.base is not None else Model([], [], origin=f"(absent):{sides.path}")
+    summary = diff_models(old, sides.head, config, with_checks=False, with_picture=False).summary()
+    # The gate compares findings itself; the diff's own (uncomputed here) would only mislead.
+    return {k: v for k, v in summary.items() if k not in ("findings", "coverage")}
+
+
+def _outcome(sides: FileSides, status: str, head: list[Finding], base: list[Finding],
+             diff: dict[str, Any] | None, inputs: list[dict[str, Any]]) -> FileOutcome:
+    before = {f.fingerprint for f in base}
+    after = {f.fingerprint for f in head}
+    return FileOutcome(
+        sides.path,
+        status,
+        head,
+        [f for f in head if f.fingerprint not in before],
+        [f for f in base if f.fingerprint not in after],
+        diff,
+        inputs,
+    )
+
+
+@dataclass(frozen=True)
+class GateResult(CheckResult):
+    """A check result whose ``findings`` are those new since base, plus what was resolved."""
+
+    resolved: tuple[Finding, ...] = ()
+    base: dict[str, Any] = field(default_factory=dict)  # rev, commit, how it was chosen
+    head: dict[str, Any] = field(default_factory=dict)  # rev (None: working tree), commit
+    files: tuple[FileOutcome, ...] = ()
+
+    def summary(self) -> dict[str, Any]:
+        statuses = Counter(f.status for f in self.files)
+        return super().summary() | {
+            "new": len(self.findings),
+            "resolved": len(self.resolved),
+            "files": {s: statuses.get(s, 0) for s in FILE_STATUSES},
+        }
+
+    def to_json(self) -> dict[str, Any]:
+        return super().to_json() | {
+            "resolved": [f.to_json() for f in self.resolved],
+            "gate": {"base": self.base, "head": self.head, "files": [f.to_json() for f in self.files]},
+        }
+
+
+def sorted_findings(findings) -> list[Finding]:
+    return sorted(findings, key=sort_key)
