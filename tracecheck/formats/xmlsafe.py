@@ -30,7 +30,10 @@ from lxml import etree
 
 from tracecheck.errors import InputError
 
-__all__ = ["SAFE_OPTIONS", "iterparse", "check_prolog", "release", "head_text", "safe_parser"]
+__all__ = [
+    "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "head_text", "safe_parser",
+    "syntax_error",
+]
 
 SAFE_OPTIONS: dict[str, Any] = {
     "resolve_entities": False,
@@ -88,10 +91,12 @@ def _check_docinfo(root: Any, origin: str) -> None:
         raise _refuse(origin, "declares entities")
 
 
-def check_prolog(data: bytes, origin: str) -> None:
+def check_prolog(data: bytes, origin: str) -> tuple[str, int | None]:
     """Refuse a document whose DOCTYPE declares entities or an external subset.
 
-    Reads only up to the root element's start tag.
+    Reads only up to the root element's start tag and returns that element's tag
+    (``{namespace}local``) and line, so a reader can refuse the wrong document type
+    before it reads any content.
 
     Raises
     ------
@@ -105,10 +110,19 @@ def check_prolog(data: bytes, origin: str) -> None:
             parser.feed(data[offset : offset + (1 << 16)])
             for _event, root in parser.read_events():
                 _check_docinfo(root, origin)
-                return
+                return root.tag, root.sourceline
         parser.close()
     except etree.XMLSyntaxError as error:
         raise syntax_error(error, origin) from None
+    raise InputError(f"{origin}: malformed XML: the document has no root element.")
+
+
+def describe_tag(tag: str) -> str:
+    """``{ns}name`` as words: ``<name> in the namespace ns`` or ``<name> without a namespace``."""
+    if tag.startswith("{"):
+        namespace, _, local = tag[1:].partition("}")
+        return f"<{local}> in the namespace {namespace}"
+    return f"<{tag}> without a namespace"
 
 
 def syntax_error(error: etree.XMLSyntaxError, origin: str) -> InputError:
@@ -128,18 +142,27 @@ def iterparse(
     *,
     events: Iterable[str] = ("end",),
     tag: Iterable[str] | str | None = None,
+    root: str | None = None,
+    format_name: str = "",
 ) -> Iterator[tuple[str, Any]]:
     """``lxml.etree.iterparse`` over ``data`` with the hardened options.
 
-    The prolog is checked first, so a refused document yields nothing at all.
-    Callers clear what they have read with :func:`release`.
+    The prolog is checked first, so a refused document yields nothing at all; so is
+    the root element's tag when ``root`` is given (``format_name`` names the format in
+    the message). Callers clear what they have read with :func:`release`.
 
     Raises
     ------
     InputError
-        Refused DOCTYPE or malformed XML (with line and column).
+        Refused DOCTYPE, malformed XML (with line and column), or the wrong root.
     """
-    check_prolog(data, origin)
+    found, line = check_prolog(data, origin)
+    if root is not None and found != root:
+        where = f"{origin}:{line}" if line else origin
+        raise InputError(
+            f"{where}: the root element is {describe_tag(found)}, not {describe_tag(root)}; "
+            f"the document is not {format_name or 'the expected format'}."
+        )
     context = etree.iterparse(
         io.BytesIO(data), events=tuple(events), tag=tag, remove_blank_text=False, **SAFE_OPTIONS
     )
