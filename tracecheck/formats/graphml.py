@@ -361,10 +361,9 @@ class GraphML:
     extensions = (".graphml", ".xml")
 
     def sniff(self, head: bytes, name: str) -> bool:
-        text = xmlsafe.head_text(head)
-        return "<graphml" in text or NAMESPACE in text or (
-            name.lower().endswith(".graphml") and text.lstrip().startswith("<")
-        )
+        if xmlsafe.root_name(head) == "graphml":
+            return True
+        return name.lower().endswith(".graphml") and xmlsafe.looks_like_xml(head)
 
     def read(self, data: bytes, origin: str, options: Mapping[str, Any]) -> Model:
         return parse(data, origin, options)

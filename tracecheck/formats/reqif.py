@@ -848,8 +848,9 @@ class ReqIF:
     extensions = (".reqif",)
 
     def sniff(self, head: bytes, name: str) -> bool:
-        text = xmlsafe.head_text(head)
-        return "<REQ-IF" in text or ":REQ-IF" in text or NAMESPACE in text
+        if xmlsafe.root_name(head) == "REQ-IF":
+            return True
+        return name.lower().endswith(".reqif") and xmlsafe.looks_like_xml(head)
 
     def read(self, data: bytes, origin: str, options: Mapping[str, Any]) -> Model:
         return parse(data, origin, options)

@@ -32,6 +32,7 @@ from tracecheck.errors import InputError
 
 __all__ = [
     "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "head_text", "safe_parser",
+    "looks_like_xml", "root_name",
     "syntax_error",
 ]
 
@@ -179,6 +180,29 @@ def release(element: Any) -> None:
     if parent is not None:
         while element.getprevious() is not None:
             del parent[0]
+
+
+_COMMENT = re.compile(r"<!--.*?(?:-->|\Z)", re.DOTALL)
+_PI = re.compile(r"<\?.*?(?:\?>|\Z)", re.DOTALL)
+_START_TAG = re.compile(r"<(?:[A-Za-z_][\w.\-]*:)?([A-Za-z_][\w.\-]*)")
+
+
+def looks_like_xml(head: bytes) -> bool:
+    """Whether the first bytes could start an XML document (for content sniffing)."""
+    return head_text(head).lstrip("\ufeff \t\r\n").startswith("<")
+
+
+def root_name(head: bytes) -> str | None:
+    """The local name of the first element in ``head``, or ``None`` when it is not XML.
+
+    A sniffing heuristic: comments, processing instructions and declarations are
+    skipped; a document mentioning ``<graphml>`` in prose is not GraphML.
+    """
+    if not looks_like_xml(head):
+        return None
+    text = _PI.sub("", _COMMENT.sub("", head_text(head)))
+    found = _START_TAG.search(text)
+    return found.group(1) if found else None
 
 
 def head_text(head: bytes) -> str:
