@@ -110,4 +110,4 @@ def _load_builtin() -> None:
 
 
 # Modules under tracecheck/formats/ that register an adapter on import.
-_BUILTIN = ["thread_json", "graphml", "reqif", "reqifz"]
+_BUILTIN = ["thread_json", "graphml", "reqif", "reqifz", "csvpair"]
