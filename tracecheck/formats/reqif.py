@@ -30,6 +30,9 @@ Options (``[formats.reqif]``; defaults in brackets):
     writer uses them only where ReqIF cannot say it otherwise: ids that are not XML
     names (``IDENTIFIER`` is an ``xsd:ID``), repeated ids, link ids, and parents that
     are missing, cyclic or nested deeper than :data:`MAX_DEPTH`.
+``source_attribute`` ["tracecheck.source"], ``target_attribute`` ["tracecheck.target"]
+    likewise for a link end that names no element and that a reference cannot carry
+    exactly (empty, or with surrounding whitespace).
 
 Writing produces ReqIF 1.2 that validates against the OMG schema. Lists of strings are
 multi-valued enumerations; other lists are JSON text in a string attribute whose
@@ -82,6 +85,8 @@ OPTIONS = {
     "name": ("LONG-NAME", "str"),
     "id_attribute": ("tracecheck.id", "str"),
     "parent_attribute": ("tracecheck.parent", "str"),
+    "source_attribute": ("tracecheck.source", "str"),
+    "target_attribute": ("tracecheck.target", "str"),
 }
 
 _VALUE_KINDS = ("BOOLEAN", "DATE", "ENUMERATION", "INTEGER", "REAL", "STRING", "XHTML")
@@ -248,8 +253,9 @@ class _Reader:
         target = self.ref(elem, f"{_R}TARGET/{_R}SPEC-OBJECT-REF", what)
         attributes = self.values(elem, defaults, what)
         link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
-        self.links.append((self.ident_to_id.get(source, source), self.ident_to_id.get(target, target),
-                           type_ref, link_id, attributes, line))
+        source = _as_text(attributes.pop(self.opts["source_attribute"], None)) or self.ident_to_id.get(source, source)
+        target = _as_text(attributes.pop(self.opts["target_attribute"], None)) or self.ident_to_id.get(target, target)
+        self.links.append((source, target, type_ref, link_id, attributes, line))
 
     def hierarchy_end(self, elem: Any) -> None:
         obj = self.ref(elem, f"{_R}OBJECT/{_R}SPEC-OBJECT-REF", "a SPEC-HIERARCHY")
@@ -438,11 +444,13 @@ class _Plan:
             self.first_ident.setdefault(element.id, self.object_ident[n])
         self.relation_ident = [r or ids.fresh("relation") for r in self.relation_ident]
         self.expressible = _expressible_parents(model)
-        self.specials = {opts["text"], opts["id_attribute"], opts["parent_attribute"]}
+        self.specials = {opts["text"], opts["id_attribute"], opts["parent_attribute"],
+                         opts["source_attribute"], opts["target_attribute"]}
         if opts["name"] != "LONG-NAME":
             self.specials.add(opts["name"])
         self.object_explicit = [self._explicit_object(n, e) for n, e in enumerate(model.elements)]
-        self.relation_explicit = [[] if x.id is None else [(opts["id_attribute"], x.id)] for x in model.links]
+        self.endpoints: list[tuple[str, str]] = []
+        self.relation_explicit = [self._explicit_relation(x) for x in model.links]
         self.object_types = self._types(
             [(e.kind, e, x) for e, x in zip(model.elements, self.object_explicit, strict=True)], "object-type")
         self.relation_types = self._types(
@@ -460,6 +468,20 @@ class _Plan:
             explicit.append((self.opts["id_attribute"], element.id))
         if element.parent is not None and not self.expressible[n]:
             explicit.append((self.opts["parent_attribute"], element.parent))
+        return explicit
+
+    def _explicit_relation(self, link: Link) -> list[tuple[str, str]]:
+        """The link id, and ends that a reference cannot carry exactly (readers strip
+        whitespace from references), written as attributes; records the references."""
+        explicit = [] if link.id is None else [(self.opts["id_attribute"], link.id)]
+        refs = []
+        for end, option in ((link.source, "source_attribute"), (link.target, "target_attribute")):
+            ref = self.first_ident.get(end)
+            if ref is None and (end != end.strip() or not end):
+                ref = self.ids.fresh("dangling")
+                explicit.append((self.opts[option], end))
+            refs.append(ref or end)
+        self.endpoints.append((refs[0], refs[1]))
         return explicit
 
     def _types(self, owners: list[tuple[str, Any, list]], prefix: str) -> dict[str, dict]:
@@ -780,10 +802,11 @@ def _relations(xf: Any, plan: _Plan, timestamp: str) -> None:
             what = _describe(link)
             with xf.element(_R + "SPEC-RELATION", _identifiable(plan.relation_ident[n], timestamp)):
                 _owner_values(xf, plan, plan.relation_types, link.relation, link, plan.relation_explicit[n])
+                source, target = plan.endpoints[n]
                 with xf.element(_R + "SOURCE"):
-                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(plan.first_ident.get(link.source, link.source), what))
+                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(source, what))
                 with xf.element(_R + "TARGET"):
-                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(plan.first_ident.get(link.target, link.target), what))
+                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(target, what))
                 with xf.element(_R + "TYPE"):
                     _leaf(xf, "SPEC-RELATION-TYPE-REF", plan.relation_types[link.relation]["ident"])
             xf.write("\n")
