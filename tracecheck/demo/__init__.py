@@ -136,3 +136,7 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
 # Later capabilities (diff, gate, coverage, history, formats, embedding) add a step here:
 # a function (demo, out, options) -> list of report file names it wrote.
 _EXTRA_STEPS: list = []
+
+from tracecheck.demo.formats_step import formats_step  # noqa: E402  (after _EXTRA_STEPS exists)
+
+_EXTRA_STEPS.append(formats_step)
