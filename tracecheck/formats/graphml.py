@@ -85,21 +85,24 @@ class _Key:
 
 
 class _Reader:
-    """State of one streaming read: declared keys, the node nesting, what was built."""
+    """State of one streaming read: declared keys and what was built.
+
+    Only end events are used: when a node or edge ends, its data children are complete,
+    and its enclosing graph (and, for a nested graph, the enclosing node) are still in
+    the tree, so the nesting that gives ``parent`` can be read off it.
+    """
 
     def __init__(self, origin: str, options: Mapping[str, Any]) -> None:
         self.origin = origin
         self.options = adapter_options(options, "graphml", OPTIONS)
-        self.fields = {self.options[f]: f for f in _FIELDS}
+        self.names = tuple(self.options[f] for f in _FIELDS)
         self.keys: dict[str, _Key] = {}
         self.elements: list[Element] = []
         self.links: list[Link] = []
         self.meta: dict[str, Any] = {}
-        self.nodes: list[str] = []  # ids of the nodes whose subgraph we are inside
-        self.depth = 0  # graph nesting
         self.meta_done = False
         self.skipped: set[str] = set()  # keys without attr.name
-        self._defaults: dict[str, list[tuple[str, Any]]] | None = None
+        self.defaults: dict[str, list[tuple[str, Any]]] = {"node": [], "edge": [], "graph": []}
 
     def fail(self, line: int | None, message: str) -> InputError:
         where = f"{self.origin}:{line}" if line else self.origin
@@ -114,7 +117,6 @@ class _Reader:
         if name is None:  # drawing data of graph editors: not part of the model
             self.skipped.add(key_id)
             return
-        self._defaults = None
         type_name = elem.get("attr.type", "string")
         if type_name not in _CONVERT:
             raise self.fail(elem.sourceline, f"key {key_id!r} has unknown attr.type {type_name!r}.")
@@ -123,8 +125,11 @@ class _Reader:
         key = _Key(name, elem.get("for", "all"), _CONVERT[type_name], as_json, None)
         default = elem.find(_DEFAULT)
         if default is not None:
-            key = _Key(key.name, key.domain, key.convert, key.as_json,
-                       self.value(key, default.text or "", default.sourceline, key_id))
+            value = self.value(key, default.text or "", default.sourceline, f"the default of key {key_id!r}")
+            key = _Key(key.name, key.domain, key.convert, key.as_json, value)
+            for domain in ("node", "edge", "graph"):
+                if key.domain in (domain, "all"):
+                    self.defaults[domain].append((name, value))
         self.keys[key_id] = key
 
     def value(self, key: _Key, text: str, line: int | None, what: str) -> Any:
@@ -134,29 +139,26 @@ class _Reader:
         except ValueError as error:
             raise self.fail(line, f"data for {key.name!r} of {what}: {error}.") from None
 
-    def data(self, elem: Any, what: str, domain: str) -> dict[str, Any]:
-        """The typed data of a node, edge or graph, with key defaults filled in."""
+    def data(self, elem: Any, what: Any, domain: str) -> dict[str, Any]:
+        """The typed data of a node, edge or graph, with key defaults filled in.
+
+        ``what`` is a callable giving the owner's description, built only for a message.
+        """
         values: dict[str, Any] = {}
+        keys = self.keys
         for child in elem.iterchildren(_DATA):
-            key_id = child.get("key")
-            key = self.keys.get(key_id)
+            key = keys.get(child.get("key"))
             if key is None:
-                if key_id not in self.skipped:
-                    raise self.fail(child.sourceline, f"data of {what} refers to undeclared key {key_id!r}.")
+                if child.get("key") not in self.skipped:
+                    raise self.fail(child.sourceline, f"data of {what()} refers to undeclared key {child.get('key')!r}.")
                 continue
-            values[key.name] = self.value(key, child.text or "", child.sourceline, what)
-        for name, default in self.defaults(domain):
+            if key.convert is str and not key.as_json:
+                values[key.name] = child.text or ""
+            else:
+                values[key.name] = self.value(key, child.text or "", child.sourceline, what())
+        for name, default in self.defaults[domain]:
             values.setdefault(name, default)
         return values
-
-    def defaults(self, domain: str) -> list[tuple[str, Any]]:
-        if self._defaults is None:
-            self._defaults = {
-                d: [(k.name, k.default) for k in self.keys.values()
-                    if k.default is not None and k.domain in (d, "all")]
-                for d in ("node", "edge", "graph")
-            }
-        return self._defaults[domain]
 
     # --- records ---------------------------------------------------------------------
 
@@ -165,18 +167,23 @@ class _Reader:
         line = elem.sourceline
         if not node_id:
             raise self.fail(line, "a <node> has no 'id'.")
-        values = self.data(elem, f"node {node_id!r}", "node")
-        fields = {self.fields[k]: values.pop(k) for k in list(values) if k in self.fields}
-        kind = fields.get("kind", self.options["default_kind"])
-        if not kind:
-            raise self.fail(line, f"node {node_id!r} has no {self.options['kind']!r} data "
-                            "(set formats.graphml.default_kind to supply one).")
-        parent = fields.get("parent")
-        if parent is None and len(self.nodes) > 1:
-            parent = self.nodes[-2]
+        if not self.meta_done:
+            self.graph_meta(elem.getparent())
+        values = self.data(elem, lambda: f"node {node_id!r}", "node")
+        kind_key, name_key, text_key, parent_key = self.names
+        kind = values.pop(kind_key, None)
+        if kind is None:
+            kind = self.options["default_kind"]
+            if not kind:
+                raise self.fail(line, f"node {node_id!r} has no {kind_key!r} data "
+                                "(set formats.graphml.default_kind to supply one).")
+        name, text, parent = values.pop(name_key, None), values.pop(text_key, None), values.pop(parent_key, None)
+        if parent is None:
+            above = elem.getparent().getparent()
+            if above is not None and above.tag == _NODE:
+                parent = above.get("id")
         self.elements.append(Element(
-            node_id, str(kind), _text(fields.get("name")), _text(fields.get("text")),
-            _text(parent) or None, values, Location(self.origin, line),
+            node_id, str(kind), _text(name), _text(text), _text(parent) or None, values, Location(self.origin, line),
         ))
 
     def edge(self, elem: Any) -> None:
@@ -184,19 +191,20 @@ class _Reader:
         source, target = elem.get("source"), elem.get("target")
         if not source or not target:
             raise self.fail(line, "an <edge> needs both 'source' and 'target'.")
-        what = f"edge {source!r} -> {target!r}"
-        values = self.data(elem, what, "edge")
+        if not self.meta_done:
+            self.graph_meta(elem.getparent())
+        values = self.data(elem, lambda: f"edge {source!r} -> {target!r}", "edge")
         relation = values.pop(self.options["relation"], None) or self.options["default_relation"]
         if not relation:
-            raise self.fail(line, f"{what} has no {self.options['relation']!r} data "
+            raise self.fail(line, f"edge {source!r} -> {target!r} has no {self.options['relation']!r} data "
                             "(set formats.graphml.default_relation to supply one).")
-        self.links.append(Link(source, target, str(relation), elem.get("id"), values,
-                               Location(self.origin, line)))
+        self.links.append(Link(source, target, str(relation), elem.get("id"), values, Location(self.origin, line)))
 
     def graph_meta(self, graph: Any) -> None:
-        if not self.meta_done and self.depth == 1:
-            self.meta = self.data(graph, "the graph", "graph")
-        self.meta_done = self.meta_done or self.depth == 1
+        """Graph-level data of the top graph, read before its children are released."""
+        if graph.tag == _GRAPH and graph.getparent() is not None and graph.getparent().tag == _N + "graphml":
+            self.meta = self.data(graph, lambda: "the graph", "graph")
+            self.meta_done = True
 
 
 def _text(value: Any) -> str | None:
@@ -216,44 +224,25 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         an edge without ends or relation, a value that does not match its key's type.
     """
     reader = _Reader(origin, options or {})
-    events = xmlsafe.iterparse(data, origin, events=("start", "end"), tag=_TAGS,
+    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_N + "graphml", format_name="GraphML")
-    for event, elem in events:
-        if event == "start":
-            _start(reader, elem)
+    release = xmlsafe.release
+    for _event, elem in events:
+        tag = elem.tag
+        if tag == _NODE:
+            reader.node(elem)
+            release(elem)
+        elif tag == _EDGE:
+            reader.edge(elem)
+            release(elem)
+        elif tag == _KEY:
+            reader.add_key(elem)
+        elif tag == _GRAPH:
+            if not reader.meta_done:
+                reader.graph_meta(elem)
         else:
-            _end(reader, elem)
+            raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
     return Model(reader.elements, reader.links, meta=reader.meta, origin=origin, format="graphml")
-
-
-def _start(reader: _Reader, elem: Any) -> None:
-    tag = elem.tag
-    if tag == _NODE:
-        reader.nodes.append(elem.get("id") or "")
-    elif tag == _GRAPH:
-        reader.depth += 1
-    elif tag == _EDGE:
-        reader.graph_meta(elem.getparent())
-    elif tag == _HYPEREDGE:
-        raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
-    if tag == _NODE:
-        reader.graph_meta(elem.getparent())
-
-
-def _end(reader: _Reader, elem: Any) -> None:
-    tag = elem.tag
-    if tag == _NODE:
-        reader.node(elem)
-        reader.nodes.pop()
-        xmlsafe.release(elem)
-    elif tag == _EDGE:
-        reader.edge(elem)
-        xmlsafe.release(elem)
-    elif tag == _KEY:
-        reader.add_key(elem)
-    elif tag == _GRAPH:
-        reader.graph_meta(elem)
-        reader.depth -= 1
 
 
 # --- writing ---------------------------------------------------------------------------

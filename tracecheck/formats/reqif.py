@@ -91,6 +91,8 @@ OPTIONS = {
 
 _VALUE_KINDS = ("BOOLEAN", "DATE", "ENUMERATION", "INTEGER", "REAL", "STRING", "XHTML")
 _VALUE_TAGS = {_R + f"ATTRIBUTE-VALUE-{k}": k for k in _VALUE_KINDS}
+_DEFINITION_REF = {k: _R + f"ATTRIBUTE-DEFINITION-{k}-REF" for k in _VALUE_KINDS}
+_VALUES, _DEFINITION = _R + "VALUES", _R + "DEFINITION"
 _DEFINITION_TAGS = {_R + f"ATTRIBUTE-DEFINITION-{k}": k for k in _VALUE_KINDS}
 _SCALAR = {"BOOLEAN": parse_bool, "INTEGER": int, "REAL": float, "STRING": str, "DATE": str}
 _BLOCKS = frozenset(
@@ -129,7 +131,8 @@ class _Reader:
         self.exact: dict[str, str] = {}  # type IDENTIFIER -> kind or relation written by tracecheck
         self.ident_to_id: dict[str, str] = {}  # only where the id differs from IDENTIFIER
         self.parent_of: dict[str, str] = {}  # child IDENTIFIER -> parent IDENTIFIER
-        self.frames: list[list[str]] = []  # SPEC-HIERARCHY nesting: children seen so far
+        # Objects of SPEC-HIERARCHYs that ended, by nesting depth, waiting for their parent.
+        self.waiting: dict[int, list[str]] = {}
         self.title: str | None = None
         self.meta: dict[str, Any] | None = None
 
@@ -137,11 +140,15 @@ class _Reader:
         where = f"{self.origin}:{line}" if line else self.origin
         return InputError(f"{where}: {message}")
 
-    def ref(self, elem: Any, path: str, what: str) -> str:
-        found = elem.find(path)
-        if found is None or not (found.text or "").strip():
-            raise self.fail(elem.sourceline, f"{what} has no {path.replace(_R, '')}.")
-        return found.text.strip()
+    def ref(self, elem: Any, children: dict[str, Any], outer: str, inner: str, what: str) -> str:
+        """The text of ``elem/outer/inner`` (both in the ReqIF namespace), stripped.
+
+        ``children`` maps ``elem``'s child tags to children (built once per record).
+        """
+        text = _leaf_text(children.get(_R + outer), _R + inner)
+        if not text or not text.strip():
+            raise self.fail(elem.sourceline, f"{what} has no {outer}/{inner}.")
+        return text.strip()
 
     # --- declarations ------------------------------------------------------------------
 
@@ -184,7 +191,7 @@ class _Reader:
         kind = definition.kind
         try:
             if kind == "XHTML":
-                the_value = elem.find(_R + "THE-VALUE")
+                the_value = _first(elem, _R + "THE-VALUE")
                 return "" if the_value is None else flatten_xhtml(the_value)
             if kind == "ENUMERATION":
                 names = [self.enum_names.get(r.text.strip(), r.text.strip())
@@ -198,21 +205,27 @@ class _Reader:
         except ValueError as error:
             raise self.fail(elem.sourceline, f"{what}: attribute {definition.name!r}: {error}.") from None
 
-    def values(self, elem: Any, type_defaults: list, what: str) -> dict[str, Any]:
+    def values(self, values: Any, type_defaults: list, what: str) -> dict[str, Any]:
         """Attribute values by definition name, defaults filled in."""
         found: dict[str, Any] = {}
         seen: set[str] = set()
-        values = elem.find(_R + "VALUES")
         for item in () if values is None else values:
             kind = _VALUE_TAGS.get(item.tag)
             if kind is None:
                 continue
-            ref = item.find(f"{_R}DEFINITION/{_R}ATTRIBUTE-DEFINITION-{kind}-REF")
-            definition = None if ref is None else self.definitions.get((ref.text or "").strip())
+            def_id = ""
+            for part in item:  # DEFINITION, and THE-VALUE or VALUES for XHTML and enumerations
+                if part.tag == _DEFINITION:
+                    def_id = (_leaf_text(part, _DEFINITION_REF[kind]) or "").strip()
+                    break
+            definition = self.definitions.get(def_id)
             if definition is None:
                 raise self.fail(item.sourceline, f"{what}: a value refers to an unknown attribute definition.")
-            seen.add(ref.text.strip())
-            found[definition.name] = self.value(item, definition, what)
+            seen.add(def_id)
+            if definition.kind == "STRING" and not definition.as_json and item.get("THE-VALUE") is not None:
+                found[definition.name] = item.get("THE-VALUE")
+            else:
+                found[definition.name] = self.value(item, definition, what)
         for def_id, definition in type_defaults:
             if def_id not in seen:
                 found.setdefault(definition.name, definition.default)
@@ -225,11 +238,12 @@ class _Reader:
         if not ident:
             raise self.fail(line, "a SPEC-OBJECT has no IDENTIFIER.")
         what = f"SPEC-OBJECT {ident!r}"
-        type_ref = self.ref(elem, f"{_R}TYPE/{_R}SPEC-OBJECT-TYPE-REF", what)
+        children = {child.tag: child for child in elem}
+        type_ref = self.ref(elem, children, "TYPE", "SPEC-OBJECT-TYPE-REF", what)
         if type_ref not in self.types:
             raise self.fail(line, f"{what} refers to an unknown SPEC-OBJECT-TYPE {type_ref!r}.")
         _kind, defaults = self.types[type_ref]
-        attributes = self.values(elem, defaults, what)
+        attributes = self.values(children.get(_VALUES), defaults, what)
         opts = self.opts
         element_id = _as_text(attributes.pop(opts["id_attribute"], None)) or ident
         if element_id != ident:
@@ -245,24 +259,27 @@ class _Reader:
     def spec_relation(self, elem: Any) -> None:
         line, ident = elem.sourceline, elem.get("IDENTIFIER") or "?"
         what = f"SPEC-RELATION {ident!r}"
-        type_ref = self.ref(elem, f"{_R}TYPE/{_R}SPEC-RELATION-TYPE-REF", what)
+        children = {child.tag: child for child in elem}
+        type_ref = self.ref(elem, children, "TYPE", "SPEC-RELATION-TYPE-REF", what)
         if type_ref not in self.types:
             raise self.fail(line, f"{what} refers to an unknown SPEC-RELATION-TYPE {type_ref!r}.")
         _relation, defaults = self.types[type_ref]
-        source = self.ref(elem, f"{_R}SOURCE/{_R}SPEC-OBJECT-REF", what)
-        target = self.ref(elem, f"{_R}TARGET/{_R}SPEC-OBJECT-REF", what)
-        attributes = self.values(elem, defaults, what)
+        source = self.ref(elem, children, "SOURCE", "SPEC-OBJECT-REF", what)
+        target = self.ref(elem, children, "TARGET", "SPEC-OBJECT-REF", what)
+        attributes = self.values(children.get(_VALUES), defaults, what)
         link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
         source = _as_text(attributes.pop(self.opts["source_attribute"], None)) or self.ident_to_id.get(source, source)
         target = _as_text(attributes.pop(self.opts["target_attribute"], None)) or self.ident_to_id.get(target, target)
         self.links.append((source, target, type_ref, link_id, attributes, line))
 
     def hierarchy_end(self, elem: Any) -> None:
-        obj = self.ref(elem, f"{_R}OBJECT/{_R}SPEC-OBJECT-REF", "a SPEC-HIERARCHY")
-        for child in self.frames.pop():
+        obj = self.ref(elem, {c.tag: c for c in elem}, "OBJECT", "SPEC-OBJECT-REF", "a SPEC-HIERARCHY")
+        # Children end before their parent, so when a hierarchy at depth d ends, the
+        # objects waiting at depth d + 1 are exactly its children.
+        depth = sum(1 for _ in elem.iterancestors(_HIERARCHY))
+        for child in self.waiting.pop(depth + 1, ()):
             self.parent_of.setdefault(child, obj)
-        if self.frames:
-            self.frames[-1].append(obj)
+        self.waiting.setdefault(depth, []).append(obj)
 
     def tool_extension(self, elem: Any) -> None:
         for entry in elem.iter(_X + "type"):
@@ -297,6 +314,29 @@ class _Reader:
                  for source, target, type_ref, link_id, attributes, line in self.links]
         meta = self.meta if self.meta is not None else ({"name": self.title} if self.title else {})
         return Model(elements, links, meta=meta, origin=origin, format="reqif")
+
+
+def _first(elem: Any, tag: str) -> Any:
+    """The first child of ``elem`` with ``tag`` (``None`` when either is missing).
+
+    ``iterchildren`` filters in C; ``find`` with a path goes through ElementPath and
+    was the reader's largest cost.
+    """
+    if elem is None:
+        return None
+    for child in elem.iterchildren(tag):
+        return child
+    return None
+
+
+def _leaf_text(outer: Any, tag: str) -> str | None:
+    """The text of the child of ``outer`` with ``tag`` (``None`` when either is missing)."""
+    if outer is None:
+        return None
+    for child in outer:  # one child in practice; plain iteration beats tag-filtered lookups
+        if child.tag == tag:
+            return child.text
+    return None
 
 
 def _as_text(value: Any) -> str | None:
@@ -359,13 +399,9 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         does not fit its datatype.
     """
     reader = _Reader(origin, options or {})
-    events = xmlsafe.iterparse(data, origin, events=("start", "end"), tag=_TAGS,
+    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_R + "REQ-IF", format_name="ReqIF 1.2")
-    for event, elem in events:
-        if event == "start":
-            if elem.tag == _HIERARCHY:
-                reader.frames.append([])
-            continue
+    for _event, elem in events:
         _dispatch(reader, elem)
     return reader.model()
 
