@@ -3,10 +3,13 @@
 from __future__ import annotations
 
 import io
+import json
 
 import networkx as nx
 import pytest
+from click.testing import CliRunner
 
+from tracecheck.cli import cli
 from tracecheck.demo.stages import stage_bytes
 from tracecheck.errors import ConfigError, InputError
 from tracecheck.formats import detect, graphml, read_model, thread_json
@@ -171,3 +174,24 @@ def test_lists_survive_as_json_strings_and_output_is_deterministic():
     first = graphml.write(model)
     assert first == graphml.write(model)
     assert graphml.parse(first, "t.graphml").elements[0].attributes == {"stages": ["concept", 2, True]}
+
+
+def test_configuration_file_section_reaches_the_reader(tmp_path):
+    # The README's example: [formats.graphml] kind = "type", default_relation = "traces_to".
+    (tmp_path / "tracecheck.toml").write_text('[formats.graphml]\nkind = "type"\ndefault_relation = "traces_to"\n')
+    (tmp_path / "arm.graphml").write_text(f"""<graphml xmlns="{NS}">
+  <key id="t" for="node" attr.name="type" attr.type="string"/>
+  <graph edgedefault="directed">
+    <node id="REQ-1"><data key="t">requirement</data></node>
+    <node id="REQ-2"><data key="t">requirement</data></node>
+    <edge source="REQ-2" target="REQ-1"/>
+  </graph>
+</graphml>""")
+    result = CliRunner().invoke(cli, ["convert", "arm.graphml", "-o", "arm.json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.output
+    document = json.loads((tmp_path / "arm.json").read_text())
+    assert [e["kind"] for e in document["elements"]] == ["requirement", "requirement"]
+    assert [x["relation"] for x in document["links"]] == ["traces_to"]
+    (tmp_path / "tracecheck.toml").write_text('[formats.graphml]\nknd = "type"\n')
+    result = CliRunner().invoke(cli, ["check", "arm.graphml"], catch_exceptions=False)
+    assert result.exit_code == 2 and "formats.graphml.knd: unknown option" in result.stderr
