@@ -257,13 +257,16 @@ def _write_table(owners, fields: list[tuple[str, Any]], delimiter: str) -> bytes
     columns = sorted({(name, _spelled(v)) for owner in owners for name, v in owner.attributes.items()})
     out = io.StringIO()
     writer = csv.writer(out, delimiter=delimiter, lineterminator="\n")
+    # The csv module quotes a cell holding "\n" but not one holding a lone "\r", which
+    # readers take for a line end; rows with one are written fully quoted.
+    quoted = csv.writer(out, delimiter=delimiter, lineterminator="\n", quoting=csv.QUOTE_ALL)
     writer.writerow([column for column, _get in fields] + [_header_of(n, k, field_names) for n, k in columns])
     for owner in owners:
         row = ["" if get(owner) is None else get(owner) for _column, get in fields]
         for name, kind in columns:
             value = owner.attributes.get(name)
             row.append(_text_of(value, kind) if value is not None and _spelled(value) == kind else "")
-        writer.writerow(row)
+        (quoted if any("\r" in cell for cell in row) else writer).writerow(row)
     return out.getvalue().encode("utf-8")
 
 
