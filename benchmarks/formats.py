@@ -105,7 +105,8 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         for n in (int(s) for s in args.sizes.split(",")):
             paths = write_inputs(n, Path(tmp))
-            model_mib = min(measure(READ, str(paths.pop("thread-json")), str(n))[1] for _ in range(args.repeat))
+            source = str(paths.pop("thread-json"))
+            model_mib = min(measure(READ, source, str(n))[1] for _ in range(args.repeat))
             for fmt, path in paths.items():
                 floor = [measure(FLOOR, str(path), TAGS[fmt]) for _ in range(args.repeat)]
                 touch = min(measure(TOUCH, str(path), TAGS[fmt])[0] for _ in range(args.repeat))
