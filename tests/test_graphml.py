@@ -145,6 +145,7 @@ def test_configurable_key_names():
         ('<node id="A"><data key="k">requirement</data><data key="i">two</data></node>',
          r"g.graphml:4: data for 'level' of node 'A': invalid literal"),
         ('<node><data key="k">requirement</data></node>', r"g.graphml:4: a <node> has no 'id'"),
+        ('<node id="A"><data key="k"></data></node>', r"g.graphml:4: node 'A' has no 'kind' data"),
         ('<edge source="A"/>', r"g.graphml:4: an <edge> needs both"),
         ('<hyperedge/>', r"g.graphml:4: hyperedges are not supported"),
     ],

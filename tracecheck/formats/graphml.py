@@ -172,7 +172,7 @@ class _Reader:
         values = self.data(elem, lambda: f"node {node_id!r}", "node")
         kind_key, name_key, text_key, parent_key = self.names
         kind = values.pop(kind_key, None)
-        if kind is None:
+        if kind is None or kind == "":
             kind = self.options["default_kind"]
             if not kind:
                 raise self.fail(line, f"node {node_id!r} has no {kind_key!r} data "
