@@ -108,3 +108,14 @@ def test_findings_point_at_the_line_in_the_converted_file(tmp_path, stage_file, 
             assert any(f'"{element}"' in line for element in finding["elements"]), (finding, line)
         elif suffix == ".graphml":
             assert f'source="{finding["link"]["source"]}"' in line
+
+
+@pytest.mark.parametrize("suffix", [".reqif", ".graphml"])
+def test_diff_sees_no_change_between_a_model_and_its_conversion(tmp_path, stage_file, suffix):
+    source = stage_file("detailed-design")
+    target = tmp_path / f"model{suffix}"
+    assert run("convert", str(source), "-o", str(target)).exit_code == 0
+    result = run("diff", "--fail-on-change", "--format", "json", str(source), str(target))
+    assert result.exit_code == 0, result.output
+    summary = json.loads(result.stdout)["elements"]
+    assert summary["added"] == summary["removed"] == summary["modified"] == []
