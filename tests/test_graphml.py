@@ -196,3 +196,23 @@ def test_configuration_file_section_reaches_the_reader(tmp_path):
     (tmp_path / "tracecheck.toml").write_text('[formats.graphml]\nknd = "type"\n')
     result = CliRunner().invoke(cli, ["check", "arm.graphml"], catch_exceptions=False)
     assert result.exit_code == 2 and "formats.graphml.knd: unknown option" in result.stderr
+
+
+def test_batched_release_keeps_every_record_and_its_nesting():
+    # More records than one release batch, at the top level and inside a nested graph.
+    inner = "".join(f'<node id="CMP-{n}"><data key="k">component</data></node>\n' for n in range(700))
+    outer = "".join(f'<node id="FN-{n}"><data key="k">function</data></node>\n' for n in range(700))
+    edges = "".join(f'<edge source="FN-{n}" target="CMP-{n}"><data key="r">allocated_to</data></edge>\n'
+                    for n in range(700))
+    data = f"""<graphml xmlns="{NS}">
+<key id="k" for="node" attr.name="kind"/><key id="r" for="edge" attr.name="relation"/>
+<graph edgedefault="directed">
+{outer}<node id="CMP-ROOT"><data key="k">component</data><graph>
+{inner}</graph></node>
+{edges}</graph></graphml>""".encode()
+    model = graphml.parse(data, "big.graphml")
+    assert len(model.elements) == 1401 and len(model.links) == 700
+    assert {e.parent for e in model.elements if e.id.startswith("CMP-") and e.id != "CMP-ROOT"} == {"CMP-ROOT"}
+    assert {e.parent for e in model.elements if e.id.startswith("FN-")} == {None}
+    assert model.by_id["CMP-699"].location.line == 1404  # FN-* on lines 4-703, CMP-ROOT on 704
+    assert [x.location.line for x in model.links][-1] == 2105
