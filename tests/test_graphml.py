@@ -198,8 +198,8 @@ def test_configuration_file_section_reaches_the_reader(tmp_path):
     assert result.exit_code == 2 and "formats.graphml.knd: unknown option" in result.stderr
 
 
-def test_batched_release_keeps_every_record_and_its_nesting():
-    # More records than one release batch, at the top level and inside a nested graph.
+def test_streaming_keeps_every_record_its_line_and_nesting():
+    # Records are freed as they are read; the nesting and lines must survive that.
     inner = "".join(f'<node id="CMP-{n}"><data key="k">component</data></node>\n' for n in range(700))
     outer = "".join(f'<node id="FN-{n}"><data key="k">function</data></node>\n' for n in range(700))
     edges = "".join(f'<edge source="FN-{n}" target="CMP-{n}"><data key="r">allocated_to</data></edge>\n'

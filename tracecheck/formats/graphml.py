@@ -226,7 +226,7 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_N + "graphml", format_name="GraphML")
-    release = xmlsafe.Releaser()
+    release = xmlsafe.release
     for _event, elem in events:
         tag = elem.tag
         if tag == _NODE:

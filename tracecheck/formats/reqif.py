@@ -129,7 +129,6 @@ class _Reader:
         self.records: list[tuple] = []  # one per SPEC-OBJECT, built into Elements at the end
         self.links: list[tuple] = []  # one per SPEC-RELATION, built into Links at the end
         self.exact: dict[str, str] = {}  # type IDENTIFIER -> kind or relation written by tracecheck
-        self.release = xmlsafe.Releaser()
         self.ident_to_id: dict[str, str] = {}  # only where the id differs from IDENTIFIER
         self.parent_of: dict[str, str] = {}  # child IDENTIFIER -> parent IDENTIFIER
         # Objects of SPEC-HIERARCHYs that ended, by nesting depth, waiting for their parent.
@@ -424,7 +423,7 @@ def _dispatch(reader: _Reader, elem: Any) -> None:
         return
     elif tag == _R + "REQ-IF-TOOL-EXTENSION":
         reader.tool_extension(elem)
-    reader.release(elem)
+    xmlsafe.release(elem)
 
 
 # --- writing ---------------------------------------------------------------------------

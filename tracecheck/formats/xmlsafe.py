@@ -31,7 +31,7 @@ from lxml import etree
 from tracecheck.errors import InputError
 
 __all__ = [
-    "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "Releaser", "head_text", "safe_parser",
+    "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "head_text", "safe_parser",
     "looks_like_xml", "root_name",
     "syntax_error",
 ]
@@ -180,30 +180,6 @@ def release(element: Any) -> None:
     if parent is not None:
         while element.getprevious() is not None:
             del parent[0]
-
-
-class Releaser:
-    """Frees records read by :func:`iterparse` in batches.
-
-    Call it with each record once it has been read. Every ``batch`` calls, the siblings
-    before the current record are deleted in one slice (the record itself is left to
-    the next batch: the parser may still be attached to it). Memory stays bounded by
-    ``batch`` records, and the per-record cost is one counter increment instead of a
-    clear and a walk over the previous siblings.
-    """
-
-    def __init__(self, batch: int = 256) -> None:
-        self.batch = batch
-        self.count = 0
-
-    def __call__(self, element: Any) -> None:
-        self.count += 1
-        if self.count < self.batch:
-            return
-        self.count = 0
-        parent = element.getparent()
-        if parent is not None:
-            del parent[: parent.index(element)]
 
 
 _COMMENT = re.compile(r"<!--.*?(?:-->|\Z)", re.DOTALL)
