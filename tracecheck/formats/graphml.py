@@ -40,6 +40,7 @@ from tracecheck.formats.mapping import (
     adapter_options,
     check_xml_text,
     format_scalar,
+    gc_paused,
     json_list,
     parse_bool,
     value_type,
@@ -223,6 +224,11 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         Refused or malformed XML, a root that is not GraphML, a node without id or kind,
         an edge without ends or relation, a value that does not match its key's type.
     """
+    with gc_paused():  # see mapping.gc_paused
+        return _parse(data, origin, options)
+
+
+def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_N + "graphml", format_name="GraphML")

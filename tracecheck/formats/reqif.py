@@ -59,6 +59,7 @@ from tracecheck.formats.mapping import (
     adapter_options,
     check_xml_text,
     format_scalar,
+    gc_paused,
     json_list,
     parse_bool,
     value_type,
@@ -398,6 +399,11 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         namespace, a reference to an unknown type or attribute definition, a value that
         does not fit its datatype.
     """
+    with gc_paused():  # see mapping.gc_paused
+        return _parse(data, origin, options)
+
+
+def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_R + "REQ-IF", format_name="ReqIF 1.2")
