@@ -128,3 +128,15 @@ def test_unknown_content_names_every_format_tried(tmp_path):
     assert_refused(result, doc, "tried: ")
     for name in ("graphml", "reqif", "reqifz", "thread-json"):
         assert name in result.stderr
+
+
+def test_an_error_names_this_documents_line_not_the_previous_ones(tmp_path):
+    # lxml's error log outlives a parse; a second, different error must not inherit
+    # the first one's line.
+    path = HOSTILE / "malformed.graphml"
+    assert_refused(run("check", str(path)), path, f"{path}:7:")
+    other = tmp_path / "other.graphml"
+    other.write_text("<graphml xmlns='http://graphml.graphdrawing.org/xmlns'>\n<graph>\n</graphml>\n")
+    result = run("check", str(other))
+    assert_refused(result, other, f"{other}:3:")
+    assert ":7:" not in result.stderr

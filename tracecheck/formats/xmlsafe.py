@@ -105,6 +105,9 @@ def check_prolog(data: bytes, origin: str) -> tuple[str, int | None]:
         The DOCTYPE is refused, or the prolog itself is malformed.
     """
     _scan_prolog(data, origin)
+    # lxml keeps a per-thread log of libxml2 errors across parses; syntax_error reads it,
+    # so it must hold only this document's errors (a stale entry named another file's line).
+    etree.clear_error_log()
     parser = etree.XMLPullParser(events=("start",), **SAFE_OPTIONS)
     try:
         for offset in range(0, max(len(data), 1), 1 << 16):
@@ -164,6 +167,7 @@ def iterparse(
             f"{where}: the root element is {describe_tag(found)}, not {describe_tag(root)}; "
             f"the document is not {format_name or 'the expected format'}."
         )
+    etree.clear_error_log()
     context = etree.iterparse(
         io.BytesIO(data), events=tuple(events), tag=tag, remove_blank_text=False, **SAFE_OPTIONS
     )
