@@ -35,7 +35,7 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
-from tracecheck.errors import InputError, UsageError
+from tracecheck.errors import ConfigError, InputError
 from tracecheck.formats import register
 from tracecheck.formats.mapping import adapter_options, format_scalar, parse_bool, value_type
 from tracecheck.model import Element, Link, Location, Model
@@ -66,7 +66,7 @@ _FIELD_LIMIT = 1_100_000  # thread JSON allows texts of a million characters
 def _options(options: Mapping[str, Any]) -> dict[str, Any]:
     opts = adapter_options(options, "csv", OPTIONS)
     if len(opts["delimiter"]) != 1:
-        raise UsageError("configuration formats.csv.delimiter: expected one character.")
+        raise ConfigError("configuration formats.csv.delimiter: expected one character.")
     return opts
 
 
