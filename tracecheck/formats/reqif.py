@@ -268,9 +268,14 @@ class _Reader:
         source = self.ref(elem, children, "SOURCE", "SPEC-OBJECT-REF", what)
         target = self.ref(elem, children, "TARGET", "SPEC-OBJECT-REF", what)
         attributes = self.values(children.get(_VALUES), defaults, what)
-        link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
-        source = _as_text(attributes.pop(self.opts["source_attribute"], None)) or self.ident_to_id.get(source, source)
-        target = _as_text(attributes.pop(self.opts["target_attribute"], None)) or self.ident_to_id.get(target, target)
+        link_id = exact_source = exact_target = None
+        if attributes:  # most relations carry none: skip the look-ups
+            link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
+            exact_source = _as_text(attributes.pop(self.opts["source_attribute"], None))
+            exact_target = _as_text(attributes.pop(self.opts["target_attribute"], None))
+        ident_to_id = self.ident_to_id
+        source = ident_to_id.get(source, source) if exact_source is None else exact_source
+        target = ident_to_id.get(target, target) if exact_target is None else exact_target
         self.links.append((source, target, type_ref, link_id, attributes, line))
 
     def hierarchy_end(self, elem: Any) -> None:
