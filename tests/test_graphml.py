@@ -216,3 +216,26 @@ def test_streaming_keeps_every_record_its_line_and_nesting():
     assert {e.parent for e in model.elements if e.id.startswith("FN-")} == {None}
     assert model.by_id["CMP-699"].location.line == 1404  # FN-* on lines 4-703, CMP-ROOT on 704
     assert [x.location.line for x in model.links][-1] == 2105
+
+
+def test_key_defaults_written_by_networkx_apply_as_networkx_reads_them():
+    # Oracle: networkx's own reader of the file networkx's pure-Python writer made
+    # (write_graphml_xml), with node and edge defaults declared on the keys. networkx
+    # keeps the defaults apart (graph["node_default"]); the GraphML primer (section
+    # 2.4) says a default holds for every node without data for the key, so they merge.
+    graph = nx.DiGraph(node_default={"kind": "requirement", "integrity": "B"},
+                       edge_default={"relation": "derives_from"})
+    graph.add_node("REQ-SYS-001", integrity="C")
+    graph.add_node("REQ-SYS-002")
+    graph.add_node("TST-001", kind="test")
+    graph.add_edge("REQ-SYS-002", "REQ-SYS-001")
+    graph.add_edge("TST-001", "REQ-SYS-001", relation="verifies")
+    buffer = io.BytesIO()
+    nx.write_graphml_xml(graph, buffer)
+    model = graphml.parse(buffer.getvalue(), "defaults.graphml")
+    oracle = nx.read_graphml(io.BytesIO(buffer.getvalue()))
+    node_default, edge_default = oracle.graph["node_default"], oracle.graph["edge_default"]
+    assert {e.id: {"kind": e.kind, **e.attributes} for e in model.elements} == {
+        node: {**node_default, **data} for node, data in oracle.nodes(data=True)}
+    assert sorted((x.source, x.target, x.relation) for x in model.links) == sorted(
+        (u, v, {**edge_default, **d}["relation"]) for u, v, d in oracle.edges(data=True))
