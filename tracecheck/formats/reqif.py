@@ -94,6 +94,8 @@ _VALUE_KINDS = ("BOOLEAN", "DATE", "ENUMERATION", "INTEGER", "REAL", "STRING", "
 _VALUE_TAGS = {_R + f"ATTRIBUTE-VALUE-{k}": k for k in _VALUE_KINDS}
 _DEFINITION_REF = {k: _R + f"ATTRIBUTE-DEFINITION-{k}-REF" for k in _VALUE_KINDS}
 _VALUES, _DEFINITION = _R + "VALUES", _R + "DEFINITION"
+_SOURCE, _TARGET, _TYPE = _R + "SOURCE", _R + "TARGET", _R + "TYPE"
+_OBJECT_REF, _RELATION_TYPE_REF = _R + "SPEC-OBJECT-REF", _R + "SPEC-RELATION-TYPE-REF"
 _DEFINITION_TAGS = {_R + f"ATTRIBUTE-DEFINITION-{k}": k for k in _VALUE_KINDS}
 _SCALAR = {"BOOLEAN": parse_bool, "INTEGER": int, "REAL": float, "STRING": str, "DATE": str}
 _BLOCKS = frozenset(
@@ -260,14 +262,29 @@ class _Reader:
     def spec_relation(self, elem: Any) -> None:
         line, ident = elem.sourceline, elem.get("IDENTIFIER") or "?"
         what = f"SPEC-RELATION {ident!r}"
-        children = {child.tag: child for child in elem}
-        type_ref = self.ref(elem, children, "TYPE", "SPEC-RELATION-TYPE-REF", what)
+        # One pass over the children: the hot path of the reader (most records are links).
+        source = target = type_ref = values = None
+        for child in elem:
+            tag = child.tag
+            if tag == _VALUES:
+                values = child
+            elif len(child) == 1:
+                inner = child[0]
+                if tag == _SOURCE and inner.tag == _OBJECT_REF:
+                    source = (inner.text or "").strip()
+                elif tag == _TARGET and inner.tag == _OBJECT_REF:
+                    target = (inner.text or "").strip()
+                elif tag == _TYPE and inner.tag == _RELATION_TYPE_REF:
+                    type_ref = (inner.text or "").strip()
+        if not (source and target and type_ref):  # the general path says what is missing
+            children = {child.tag: child for child in elem}
+            type_ref = self.ref(elem, children, "TYPE", "SPEC-RELATION-TYPE-REF", what)
+            source = self.ref(elem, children, "SOURCE", "SPEC-OBJECT-REF", what)
+            target = self.ref(elem, children, "TARGET", "SPEC-OBJECT-REF", what)
         if type_ref not in self.types:
             raise self.fail(line, f"{what} refers to an unknown SPEC-RELATION-TYPE {type_ref!r}.")
         _relation, defaults = self.types[type_ref]
-        source = self.ref(elem, children, "SOURCE", "SPEC-OBJECT-REF", what)
-        target = self.ref(elem, children, "TARGET", "SPEC-OBJECT-REF", what)
-        attributes = self.values(children.get(_VALUES), defaults, what)
+        attributes = self.values(values, defaults, what)
         link_id = exact_source = exact_target = None
         if attributes:  # most relations carry none: skip the look-ups
             link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
