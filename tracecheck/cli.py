@@ -336,6 +336,27 @@ def review_status(ctx: click.Context, model: str, fmt: str, output: str | None, 
                           options=_render_options(ctx, quiet, no_color, output))
 
 
+@cli.command()
+@click.argument("model")
+@click.option("-o", "--output", required=True,
+              help="Where to write: a file (.json, .graphml, .reqif), a folder for the CSV pair, or - for stdout.")
+@click.option("--to", "to", default=None, help="Output format (default: from the output name): thread-json, graphml, reqif, csv.")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.option("--config", "config_option", type=click.Path(dir_okay=False), default=None,
+              help="Configuration file (its [formats] section maps fields for each format).")
+@click.option("--quiet", is_flag=True, help="Do not report what was written.")
+@click.option("--debug", is_flag=True, hidden=True)
+@click.pass_context
+def convert(ctx: click.Context, model: str, output: str, to: str | None, input_format: str | None,
+            config_option: str | None, quiet: bool, debug: bool) -> int:
+    """Write MODEL in another format (written atomically; the model is not checked)."""
+    from tracecheck.commands import convert as command
+
+    quiet = quiet or (ctx.find_root().obj or {}).get("quiet", False)
+    return command.run(model, output=output, to=to, input_format=input_format,
+                       config_option=config_option, quiet=quiet)
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 

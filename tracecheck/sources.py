@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import os
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import BinaryIO
 
@@ -25,7 +25,9 @@ class Source:
 
     ``origin`` is the display name used in every message and finding; ``path`` is the
     file on disk (``None`` for stdin); ``rev`` the git revision for ``REV:PATH`` specs,
-    with ``repo_path`` the path inside the repository.
+    with ``repo_path`` the path inside the repository. For a CSV pair (a folder holding
+    ``elements.csv`` and ``links.csv``, or ``ELEMENTS,LINKS``) this is the elements file
+    and ``companion`` the links file.
     """
 
     data: bytes
@@ -33,6 +35,8 @@ class Source:
     path: Path | None = None
     rev: str | None = None
     repo_path: str | None = None
+    # The links file when the spec names a CSV pair (this Source is then the elements file).
+    companion: Source | None = None
 
 
 def split_rev_spec(spec: str) -> tuple[str, str] | None:
@@ -58,6 +62,10 @@ def read_source(spec: str, *, stdin: BinaryIO | None = None, cwd: Path | None = 
     if spec == "-":
         stream = stdin if stdin is not None else sys.stdin.buffer
         return Source(stream.read(), "<stdin>")
+    pair = _csv_pair(spec)
+    if pair is not None:
+        elements, links = pair
+        return replace(_read_file(elements), companion=_read_file(links))
     rev_spec = split_rev_spec(spec)
     if rev_spec is not None:
         from tracecheck import gitsource
@@ -67,10 +75,31 @@ def read_source(spec: str, *, stdin: BinaryIO | None = None, cwd: Path | None = 
     return _read_file(Path(spec))
 
 
+PAIR_FILES = ("elements.csv", "links.csv")
+
+
+def _csv_pair(spec: str) -> tuple[Path, Path] | None:
+    """The two files of a CSV pair spec: a folder holding both, or ``ELEMENTS,LINKS``."""
+    path = Path(spec)
+    if path.is_dir():
+        elements, links = (path / name for name in PAIR_FILES)
+        if elements.is_file() or links.is_file():
+            return elements, links
+        return None
+    if "," in spec and not path.exists():
+        first, _, second = spec.partition(",")
+        if first and second and Path(first).is_file() and Path(second).is_file():
+            return Path(first), Path(second)
+    return None
+
+
 def _read_file(path: Path) -> Source:
     try:
         if path.is_dir():
-            raise InputError(f"{path}: is a folder; give the model export file.")
+            raise InputError(
+                f"{path}: is a folder; give the model export file (a folder is read only when it "
+                "holds a CSV pair, elements.csv and links.csv)."
+            )
         size = path.stat().st_size
         if size > MAX_INPUT_BYTES:
             raise InputError(f"{path}: {size} bytes is larger than tracecheck reads (4 GiB).")

@@ -11,7 +11,7 @@ from pathlib import Path
 from typing import BinaryIO, TextIO
 
 from tracecheck.config import Config, find_config, load_config
-from tracecheck.errors import InputError
+from tracecheck.errors import InputError, UsageError
 from tracecheck.formats import read_model
 from tracecheck.model import Model
 from tracecheck.sources import Source, read_source
@@ -70,8 +70,22 @@ def load(
     if config is None:
         config = resolve_config(config_option, _config_anchor(source))
     options = config.section("formats")
-    model = read_model(source.data, source.origin, input_format=input_format, options=options)
+    if source.companion is not None:
+        model = _read_csv_pair(source, input_format, options)
+    else:
+        model = read_model(source.data, source.origin, input_format=input_format, options=options)
     return Loaded(source, model, config)
+
+
+def _read_csv_pair(source: Source, input_format: str | None, options) -> Model:
+    from tracecheck.formats import csvpair
+
+    if input_format not in (None, "csv"):
+        raise UsageError(
+            f"{source.origin}: the model spec names a CSV pair, which --input-format {input_format} cannot read."
+        )
+    companion = source.companion
+    return csvpair.read_pair((source.data, source.origin), (companion.data, companion.origin), options)
 
 
 def atomic_write(path: Path, data: bytes) -> None:

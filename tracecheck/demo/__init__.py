@@ -149,3 +149,7 @@ def _gate_step(demo, out, options) -> list[str]:
 
 
 _EXTRA_STEPS.append(_gate_step)
+
+from tracecheck.demo.formats_step import formats_step  # noqa: E402  (after _EXTRA_STEPS exists)
+
+_EXTRA_STEPS.append(formats_step)

@@ -64,7 +64,7 @@ def detect(data: bytes, name: str) -> Format:
     """Choose the adapter by content; the extension only breaks ties."""
     formats = registry()
     head = data[:65536]
-    if not data.strip():
+    if not head.strip() and not data.strip():  # strip the whole input only when its head is blank
         raise InputError(f"{name}: the input is empty; expected a model export.")
     candidates = [f for f in formats.values() if f.sniff(head, name)]
     if len(candidates) > 1:
@@ -110,4 +110,4 @@ def _load_builtin() -> None:
 
 
 # Modules under tracecheck/formats/ that register an adapter on import.
-_BUILTIN = ["thread_json"]
+_BUILTIN = ["thread_json", "graphml", "reqif", "reqifz", "csvpair"]

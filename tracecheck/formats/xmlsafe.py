@@ -30,7 +30,11 @@ from lxml import etree
 
 from tracecheck.errors import InputError
 
-__all__ = ["SAFE_OPTIONS", "iterparse", "check_prolog", "release", "head_text", "safe_parser"]
+__all__ = [
+    "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "head_text", "safe_parser",
+    "looks_like_xml", "root_name",
+    "syntax_error",
+]
 
 SAFE_OPTIONS: dict[str, Any] = {
     "resolve_entities": False,
@@ -88,10 +92,12 @@ def _check_docinfo(root: Any, origin: str) -> None:
         raise _refuse(origin, "declares entities")
 
 
-def check_prolog(data: bytes, origin: str) -> None:
+def check_prolog(data: bytes, origin: str) -> tuple[str, int | None]:
     """Refuse a document whose DOCTYPE declares entities or an external subset.
 
-    Reads only up to the root element's start tag.
+    Reads only up to the root element's start tag and returns that element's tag
+    (``{namespace}local``) and line, so a reader can refuse the wrong document type
+    before it reads any content.
 
     Raises
     ------
@@ -99,16 +105,28 @@ def check_prolog(data: bytes, origin: str) -> None:
         The DOCTYPE is refused, or the prolog itself is malformed.
     """
     _scan_prolog(data, origin)
+    # lxml keeps a per-thread log of libxml2 errors across parses; syntax_error reads it,
+    # so it must hold only this document's errors (a stale entry named another file's line).
+    etree.clear_error_log()
     parser = etree.XMLPullParser(events=("start",), **SAFE_OPTIONS)
     try:
         for offset in range(0, max(len(data), 1), 1 << 16):
             parser.feed(data[offset : offset + (1 << 16)])
             for _event, root in parser.read_events():
                 _check_docinfo(root, origin)
-                return
+                return root.tag, root.sourceline
         parser.close()
     except etree.XMLSyntaxError as error:
         raise syntax_error(error, origin) from None
+    raise InputError(f"{origin}: malformed XML: the document has no root element.")
+
+
+def describe_tag(tag: str) -> str:
+    """``{ns}name`` as words: ``<name> in the namespace ns`` or ``<name> without a namespace``."""
+    if tag.startswith("{"):
+        namespace, _, local = tag[1:].partition("}")
+        return f"<{local}> in the namespace {namespace}"
+    return f"<{tag}> without a namespace"
 
 
 def syntax_error(error: etree.XMLSyntaxError, origin: str) -> InputError:
@@ -128,18 +146,28 @@ def iterparse(
     *,
     events: Iterable[str] = ("end",),
     tag: Iterable[str] | str | None = None,
+    root: str | None = None,
+    format_name: str = "",
 ) -> Iterator[tuple[str, Any]]:
     """``lxml.etree.iterparse`` over ``data`` with the hardened options.
 
-    The prolog is checked first, so a refused document yields nothing at all.
-    Callers clear what they have read with :func:`release`.
+    The prolog is checked first, so a refused document yields nothing at all; so is
+    the root element's tag when ``root`` is given (``format_name`` names the format in
+    the message). Callers clear what they have read with :func:`release`.
 
     Raises
     ------
     InputError
-        Refused DOCTYPE or malformed XML (with line and column).
+        Refused DOCTYPE, malformed XML (with line and column), or the wrong root.
     """
-    check_prolog(data, origin)
+    found, line = check_prolog(data, origin)
+    if root is not None and found != root:
+        where = f"{origin}:{line}" if line else origin
+        raise InputError(
+            f"{where}: the root element is {describe_tag(found)}, not {describe_tag(root)}; "
+            f"the document is not {format_name or 'the expected format'}."
+        )
+    etree.clear_error_log()
     context = etree.iterparse(
         io.BytesIO(data), events=tuple(events), tag=tag, remove_blank_text=False, **SAFE_OPTIONS
     )
@@ -156,6 +184,29 @@ def release(element: Any) -> None:
     if parent is not None:
         while element.getprevious() is not None:
             del parent[0]
+
+
+_COMMENT = re.compile(r"<!--.*?(?:-->|\Z)", re.DOTALL)
+_PI = re.compile(r"<\?.*?(?:\?>|\Z)", re.DOTALL)
+_START_TAG = re.compile(r"<(?:[A-Za-z_][\w.\-]*:)?([A-Za-z_][\w.\-]*)")
+
+
+def looks_like_xml(head: bytes) -> bool:
+    """Whether the first bytes could start an XML document (for content sniffing)."""
+    return head_text(head).lstrip("\ufeff \t\r\n").startswith("<")
+
+
+def root_name(head: bytes) -> str | None:
+    """The local name of the first element in ``head``, or ``None`` when it is not XML.
+
+    A sniffing heuristic: comments, processing instructions and declarations are
+    skipped; a document mentioning ``<graphml>`` in prose is not GraphML.
+    """
+    if not looks_like_xml(head):
+        return None
+    text = _PI.sub("", _COMMENT.sub("", head_text(head)))
+    found = _START_TAG.search(text)
+    return found.group(1) if found else None
 
 
 def head_text(head: bytes) -> str:

@@ -1,0 +1,370 @@
+"""GraphML (``http://graphml.graphdrawing.org/xmlns``): nodes are elements, edges links.
+
+Mapping (``[formats.graphml]``; defaults in brackets). Each option names the
+``attr.name`` of a GraphML ``key``:
+
+``kind`` ["kind"], ``name`` ["name"], ``text`` ["text"], ``parent`` ["parent"]
+    node keys holding those element fields; every other node key becomes an attribute
+    under its ``attr.name``, typed by ``attr.type`` (boolean, int, long, float, double,
+    string). A node nested in another node's subgraph has that node as ``parent`` unless
+    its ``parent`` data says otherwise.
+``relation`` ["relation"]
+    the edge key holding the relation; other edge keys become link attributes. The
+    edge's ``id`` XML attribute is the link id.
+``default_kind``, ``default_relation`` [unset]
+    used when a node has no kind or an edge no relation; unset, that is an input error.
+
+Graph-level data of the top graph becomes the model's ``meta``. A key's ``<default>``
+applies to every node or edge without data for it (GraphML primer, section 2.4). Keys
+without ``attr.name`` (drawing data of graph editors) are skipped. Lists, which GraphML
+lacks, are written as JSON text in a string key whose ``<desc>`` is ``tracecheck:json``
+and read back as lists. The edge direction is always source -> target.
+
+The reader streams the document (iterparse, each node and edge cleared once read), so
+memory follows the size of the model, not of the XML tree.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from lxml import etree
+
+from tracecheck.errors import InputError
+from tracecheck.formats import register, xmlsafe
+from tracecheck.formats.mapping import (
+    adapter_options,
+    check_xml_text,
+    format_scalar,
+    gc_paused,
+    json_list,
+    parse_bool,
+    value_type,
+)
+from tracecheck.model import Element, Link, Location, Model
+
+__all__ = ["GraphML", "parse", "write", "NAMESPACE", "OPTIONS"]
+
+NAMESPACE = "http://graphml.graphdrawing.org/xmlns"
+JSON_MARK = "tracecheck:json"
+_N = "{" + NAMESPACE + "}"
+_KEY, _GRAPH, _NODE, _EDGE, _DATA = _N + "key", _N + "graph", _N + "node", _N + "edge", _N + "data"
+_HYPEREDGE, _DEFAULT, _DESC = _N + "hyperedge", _N + "default", _N + "desc"
+
+OPTIONS = {
+    "kind": ("kind", "str"),
+    "name": ("name", "str"),
+    "text": ("text", "str"),
+    "parent": ("parent", "str"),
+    "relation": ("relation", "str"),
+    "default_kind": (None, "str?"),
+    "default_relation": (None, "str?"),
+}
+_FIELDS = ("kind", "name", "text", "parent")
+_CONVERT = {
+    "string": str,
+    "boolean": parse_bool,
+    "int": int,
+    "long": int,
+    "float": float,
+    "double": float,
+}
+_TYPE_OF = {"str": "string", "bool": "boolean", "int": "long", "float": "double", "list": "string"}
+
+
+@dataclass(frozen=True, slots=True)
+class _Key:
+    name: str
+    domain: str
+    convert: Any
+    as_json: bool
+    default: Any
+
+
+class _Reader:
+    """State of one streaming read: declared keys and what was built.
+
+    Only end events are used: when a node or edge ends, its data children are complete,
+    and its enclosing graph (and, for a nested graph, the enclosing node) are still in
+    the tree, so the nesting that gives ``parent`` can be read off it.
+    """
+
+    def __init__(self, origin: str, options: Mapping[str, Any]) -> None:
+        self.origin = origin
+        self.options = adapter_options(options, "graphml", OPTIONS)
+        self.names = tuple(self.options[f] for f in _FIELDS)
+        self.keys: dict[str, _Key] = {}
+        self.elements: list[Element] = []
+        self.links: list[Link] = []
+        self.meta: dict[str, Any] = {}
+        self.meta_done = False
+        self.skipped: set[str] = set()  # keys without attr.name
+        self.defaults: dict[str, list[tuple[str, Any]]] = {"node": [], "edge": [], "graph": []}
+
+    def fail(self, line: int | None, message: str) -> InputError:
+        where = f"{self.origin}:{line}" if line else self.origin
+        return InputError(f"{where}: {message}")
+
+    # --- keys and values -------------------------------------------------------------
+
+    def add_key(self, elem: Any) -> None:
+        key_id, name = elem.get("id"), elem.get("attr.name")
+        if key_id is None:
+            raise self.fail(elem.sourceline, "a <key> has no 'id'.")
+        if name is None:  # drawing data of graph editors: not part of the model
+            self.skipped.add(key_id)
+            return
+        type_name = elem.get("attr.type", "string")
+        if type_name not in _CONVERT:
+            raise self.fail(elem.sourceline, f"key {key_id!r} has unknown attr.type {type_name!r}.")
+        desc = elem.find(_DESC)
+        as_json = desc is not None and (desc.text or "").strip() == JSON_MARK
+        key = _Key(name, elem.get("for", "all"), _CONVERT[type_name], as_json, None)
+        default = elem.find(_DEFAULT)
+        if default is not None:
+            value = self.value(key, default.text or "", default.sourceline, f"the default of key {key_id!r}")
+            key = _Key(key.name, key.domain, key.convert, key.as_json, value)
+            for domain in ("node", "edge", "graph"):
+                if key.domain in (domain, "all"):
+                    self.defaults[domain].append((name, value))
+        self.keys[key_id] = key
+
+    def value(self, key: _Key, text: str, line: int | None, what: str) -> Any:
+        try:
+            value = key.convert(text if key.convert is str else text.strip())
+            return json.loads(value) if key.as_json else value
+        except ValueError as error:
+            raise self.fail(line, f"data for {key.name!r} of {what}: {error}.") from None
+
+    def data(self, elem: Any, what: Any, domain: str) -> dict[str, Any]:
+        """The typed data of a node, edge or graph, with key defaults filled in.
+
+        ``what`` is a callable giving the owner's description, built only for a message.
+        """
+        values: dict[str, Any] = {}
+        keys = self.keys
+        for child in elem.iterchildren(_DATA):
+            key = keys.get(child.get("key"))
+            if key is None:
+                if child.get("key") not in self.skipped:
+                    raise self.fail(child.sourceline, f"data of {what()} refers to undeclared key {child.get('key')!r}.")
+                continue
+            if key.convert is str and not key.as_json:
+                values[key.name] = child.text or ""
+            else:
+                values[key.name] = self.value(key, child.text or "", child.sourceline, what())
+        for name, default in self.defaults[domain]:
+            values.setdefault(name, default)
+        return values
+
+    # --- records ---------------------------------------------------------------------
+
+    def node(self, elem: Any) -> None:
+        node_id = elem.get("id")
+        line = elem.sourceline
+        if not node_id:
+            raise self.fail(line, "a <node> has no 'id'.")
+        if not self.meta_done:
+            self.graph_meta(elem.getparent())
+        values = self.data(elem, lambda: f"node {node_id!r}", "node")
+        kind_key, name_key, text_key, parent_key = self.names
+        kind = values.pop(kind_key, None)
+        if kind is None or kind == "":
+            kind = self.options["default_kind"]
+            if not kind:
+                raise self.fail(line, f"node {node_id!r} has no {kind_key!r} data "
+                                "(set formats.graphml.default_kind to supply one).")
+        name, text, parent = values.pop(name_key, None), values.pop(text_key, None), values.pop(parent_key, None)
+        if parent is None:
+            above = elem.getparent().getparent()
+            if above is not None and above.tag == _NODE:
+                parent = above.get("id")
+        self.elements.append(Element(
+            node_id, str(kind), _text(name), _text(text), _text(parent) or None, values, Location(self.origin, line),
+        ))
+
+    def edge(self, elem: Any) -> None:
+        line = elem.sourceline
+        source, target = elem.get("source"), elem.get("target")
+        if not source or not target:
+            raise self.fail(line, "an <edge> needs both 'source' and 'target'.")
+        if not self.meta_done:
+            self.graph_meta(elem.getparent())
+        values = self.data(elem, lambda: f"edge {source!r} -> {target!r}", "edge")
+        relation = values.pop(self.options["relation"], None) or self.options["default_relation"]
+        if not relation:
+            raise self.fail(line, f"edge {source!r} -> {target!r} has no {self.options['relation']!r} data "
+                            "(set formats.graphml.default_relation to supply one).")
+        self.links.append(Link(source, target, str(relation), elem.get("id"), values, Location(self.origin, line)))
+
+    def graph_meta(self, graph: Any) -> None:
+        """Graph-level data of the top graph, read before its children are released."""
+        if graph.tag == _GRAPH and graph.getparent() is not None and graph.getparent().tag == _N + "graphml":
+            self.meta = self.data(graph, lambda: "the graph", "graph")
+            self.meta_done = True
+
+
+def _text(value: Any) -> str | None:
+    return None if value is None else str(value)
+
+
+_TAGS = (_KEY, _GRAPH, _NODE, _EDGE, _HYPEREDGE)
+
+
+def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) -> Model:
+    """Parse GraphML bytes into a :class:`Model` (streaming).
+
+    Raises
+    ------
+    InputError
+        Refused or malformed XML, a root that is not GraphML, a node without id or kind,
+        an edge without ends or relation, a value that does not match its key's type.
+    """
+    with gc_paused():  # see mapping.gc_paused
+        return _parse(data, origin, options)
+
+
+def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
+    reader = _Reader(origin, options or {})
+    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
+                               root=_N + "graphml", format_name="GraphML")
+    release = xmlsafe.release
+    for _event, elem in events:
+        tag = elem.tag
+        if tag == _NODE:
+            reader.node(elem)
+            release(elem)
+        elif tag == _EDGE:
+            reader.edge(elem)
+            release(elem)
+        elif tag == _KEY:
+            reader.add_key(elem)
+        elif tag == _GRAPH:
+            if not reader.meta_done:
+                reader.graph_meta(elem)
+        else:
+            raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
+    return Model(reader.elements, reader.links, meta=reader.meta, origin=origin, format="graphml")
+
+
+# --- writing ---------------------------------------------------------------------------
+
+
+def _key_table(model: Model, fields: Mapping[str, str], relation: str) -> dict[tuple[str, str, str], str]:
+    """Key ids for (domain, attr.name, value type), numbered in sorted order."""
+    wanted: set[tuple[str, str, str]] = set()
+    for name in model.meta:
+        wanted.add(("graph", name, value_type(model.meta[name])))
+    for element in model.elements:
+        for field in _FIELDS:
+            if field == "kind" or getattr(element, field) is not None:
+                wanted.add(("node", fields[field], "str"))
+        for name, value in element.attributes.items():
+            if name in fields.values():
+                raise InputError(
+                    f"element {element.id!r}: attribute {name!r} has the name of the GraphML key "
+                    f"for an element field; set another name in [formats.graphml]."
+                )
+            wanted.add(("node", name, value_type(value)))
+    for link in model.links:
+        wanted.add(("edge", relation, "str"))
+        for name, value in link.attributes.items():
+            if name == relation:
+                raise InputError(f"link {link.triple}: attribute {name!r} has the name of the "
+                                 "relation key; set formats.graphml.relation to another name.")
+            wanted.add(("edge", name, value_type(value)))
+    return {entry: f"d{n}" for n, entry in enumerate(sorted(wanted))}
+
+
+def _data(xf: Any, keys: Mapping, domain: str, name: str, value: Any, what: str) -> None:
+    key = keys[(domain, name, value_type(value))]
+    text = json_list(value) if isinstance(value, list) else (
+        value if isinstance(value, str) else format_scalar(value))
+    with xf.element(_DATA, key=key):
+        xf.write(check_xml_text(text, what))
+    xf.write("\n")
+
+
+def write(model: Model, options: Mapping[str, Any] | None = None) -> bytes:
+    """Serialise ``model`` as GraphML (UTF-8, one node or edge per line group).
+
+    Raises
+    ------
+    InputError
+        A value XML cannot carry, or an attribute named like a field key.
+    """
+    opts = adapter_options(options or {}, "graphml", OPTIONS)
+    fields = {f: opts[f] for f in _FIELDS}
+    keys = _key_table(model, fields, opts["relation"])
+    out = io.BytesIO()
+    with etree.xmlfile(out, encoding="utf-8") as xf:
+        xf.write_declaration()
+        with xf.element(_N + "graphml", nsmap={None: NAMESPACE}):
+            xf.write("\n")
+            for (domain, name, kind), key_id in sorted(keys.items(), key=lambda kv: int(kv[1][1:])):
+                attributes = {"id": key_id, "for": domain, "attr.name": name,
+                              "attr.type": _TYPE_OF[kind]}
+                with xf.element(_KEY, attributes):
+                    if kind == "list":
+                        with xf.element(_DESC):
+                            xf.write(JSON_MARK)
+                xf.write("\n")
+            with xf.element(_GRAPH, edgedefault="directed"):
+                xf.write("\n")
+                for name, value in model.meta.items():
+                    _data(xf, keys, "graph", name, value, f"model {name!r}")
+                for element in model.elements:
+                    _write_node(xf, keys, fields, element)
+                for link in model.links:
+                    _write_edge(xf, keys, opts["relation"], link)
+            xf.write("\n")
+    return out.getvalue() + b"\n"
+
+
+def _write_node(xf: Any, keys: Mapping, fields: Mapping[str, str], element: Element) -> None:
+    what = f"element {element.id!r}"
+    with xf.element(_NODE, id=check_xml_text(element.id, what)):
+        xf.write("\n")
+        for field in _FIELDS:
+            value = getattr(element, field)
+            if value is not None:
+                _data(xf, keys, "node", fields[field], value, f"{what} {field}")
+        for name, value in element.attributes.items():
+            _data(xf, keys, "node", name, value, f"{what} attribute {name!r}")
+    xf.write("\n")
+
+
+def _write_edge(xf: Any, keys: Mapping, relation: str, link: Link) -> None:
+    what = f"link {link.source} {link.relation} {link.target}"
+    attributes = {"source": check_xml_text(link.source, what), "target": check_xml_text(link.target, what)}
+    if link.id is not None:
+        attributes["id"] = check_xml_text(link.id, what)
+    with xf.element(_EDGE, attributes):
+        xf.write("\n")
+        _data(xf, keys, "edge", relation, link.relation, what)
+        for name, value in link.attributes.items():
+            _data(xf, keys, "edge", name, value, f"{what} attribute {name!r}")
+    xf.write("\n")
+
+
+class GraphML:
+    name = "graphml"
+    extensions = (".graphml", ".xml")
+
+    def sniff(self, head: bytes, name: str) -> bool:
+        if xmlsafe.root_name(head) == "graphml":
+            return True
+        return name.lower().endswith(".graphml") and xmlsafe.looks_like_xml(head)
+
+    def read(self, data: bytes, origin: str, options: Mapping[str, Any]) -> Model:
+        return parse(data, origin, options)
+
+    def write(self, model: Model, options: Mapping[str, Any] | None = None) -> bytes:
+        return write(model, options)
+
+
+register(GraphML())

@@ -1,0 +1,949 @@
+"""ReqIF 1.2 (OMG, namespace ``http://www.omg.org/spec/ReqIF/20110401/reqif.xsd``).
+
+Reading (``.reqif``; ``.reqifz`` archives through :mod:`tracecheck.formats.reqifz`):
+
+* every ``SPEC-OBJECT`` is an element: its id is the ``IDENTIFIER``, its name the
+  ``LONG-NAME``, its kind the ``LONG-NAME`` of its ``SPEC-OBJECT-TYPE`` lower-cased with
+  spaces as hyphens (DESIGN.md);
+* every ``SPEC-RELATION`` is a link ``SOURCE relation TARGET``, the relation being the
+  relation type's ``LONG-NAME`` normalised the same way; a reference to an identifier
+  that no ``SPEC-OBJECT`` has is kept as written (the schema cannot catch a dangling
+  relation; the ``dangling-link`` rule does);
+* ``SPEC-HIERARCHY`` nesting gives ``parent`` (the object of the enclosing hierarchy);
+* other attribute values become attributes under their definition's ``LONG-NAME``:
+  string and date as text, integer as int, real as float, boolean as bool,
+  enumeration as the enum values' ``LONG-NAME`` (a list when ``MULTI-VALUED``), XHTML
+  flattened to text for diffing; a definition's ``DEFAULT-VALUE`` fills in missing
+  values.
+
+Options (``[formats.reqif]``; defaults in brackets):
+
+``kinds`` [{}], ``relations`` [{}]
+    tables from a type's ``LONG-NAME`` to the kind / relation to use instead of the
+    normalised name (e.g. ``"Functional Requirement" = "requirement"``).
+``text`` ["ReqIF.Text"]
+    the attribute definition whose value is the element's ``text``.
+``name`` ["LONG-NAME"]
+    ``LONG-NAME`` or the attribute definition whose value is the ``name``.
+``id_attribute`` ["tracecheck.id"], ``parent_attribute`` ["tracecheck.parent"]
+    attribute definitions that, when present, give the id and parent explicitly. The
+    writer uses them only where ReqIF cannot say it otherwise: ids that are not XML
+    names (``IDENTIFIER`` is an ``xsd:ID``), repeated ids, link ids, and parents that
+    are missing, cyclic or nested deeper than :data:`MAX_DEPTH`.
+``source_attribute`` ["tracecheck.source"], ``target_attribute`` ["tracecheck.target"]
+    likewise for a link end that names no element and that a reference cannot carry
+    exactly (empty, or with surrounding whitespace).
+
+Writing produces ReqIF 1.2 that validates against the OMG schema. Lists of strings are
+multi-valued enumerations; other lists are JSON text in a string attribute whose
+definition's ``DESC`` is ``tracecheck:json``. The model's ``meta`` travels in a
+``REQ-IF-TOOL-EXTENSION``. The output is deterministic: every ``LAST-CHANGE`` and the
+``CREATION-TIME`` are :data:`EPOCH` unless the caller passes a timestamp.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from lxml import etree
+
+from tracecheck import __version__
+from tracecheck.errors import InputError
+from tracecheck.formats import register, xmlsafe
+from tracecheck.formats.mapping import (
+    adapter_options,
+    check_xml_text,
+    format_scalar,
+    gc_paused,
+    json_list,
+    parse_bool,
+    value_type,
+)
+from tracecheck.model import Element, Link, Location, Model
+
+__all__ = ["ReqIF", "parse", "write", "NAMESPACE", "XHTML", "OPTIONS", "EPOCH", "MAX_DEPTH"]
+
+NAMESPACE = "http://www.omg.org/spec/ReqIF/20110401/reqif.xsd"
+XHTML = "http://www.w3.org/1999/xhtml"
+EXTENSION = "urn:x-tracecheck:reqif-extension:1"
+EPOCH = "1970-01-01T00:00:00Z"
+MAX_DEPTH = 100  # libxml2 refuses documents nested deeper than 256 without "huge tree"
+JSON_MARK = "tracecheck:json"
+
+_R = "{" + NAMESPACE + "}"
+_H = "{" + XHTML + "}"
+_X = "{" + EXTENSION + "}"
+
+OPTIONS = {
+    "kinds": ({}, "map"),
+    "relations": ({}, "map"),
+    "text": ("ReqIF.Text", "str"),
+    "name": ("LONG-NAME", "str"),
+    "id_attribute": ("tracecheck.id", "str"),
+    "parent_attribute": ("tracecheck.parent", "str"),
+    "source_attribute": ("tracecheck.source", "str"),
+    "target_attribute": ("tracecheck.target", "str"),
+}
+
+_VALUE_KINDS = ("BOOLEAN", "DATE", "ENUMERATION", "INTEGER", "REAL", "STRING", "XHTML")
+_VALUE_TAGS = {_R + f"ATTRIBUTE-VALUE-{k}": k for k in _VALUE_KINDS}
+_DEFINITION_REF = {k: _R + f"ATTRIBUTE-DEFINITION-{k}-REF" for k in _VALUE_KINDS}
+_VALUES, _DEFINITION = _R + "VALUES", _R + "DEFINITION"
+_SOURCE, _TARGET, _TYPE = _R + "SOURCE", _R + "TARGET", _R + "TYPE"
+_OBJECT_REF, _RELATION_TYPE_REF = _R + "SPEC-OBJECT-REF", _R + "SPEC-RELATION-TYPE-REF"
+_DEFINITION_TAGS = {_R + f"ATTRIBUTE-DEFINITION-{k}": k for k in _VALUE_KINDS}
+_SCALAR = {"BOOLEAN": parse_bool, "INTEGER": int, "REAL": float, "STRING": str, "DATE": str}
+_BLOCKS = frozenset(
+    "address blockquote caption dd div dl dt h1 h2 h3 h4 h5 h6 li ol p pre table td th tr ul".split()
+)
+
+
+def normalise(name: str) -> str:
+    """A type's ``LONG-NAME`` as a kind or relation: lower-case, spaces as hyphens."""
+    return re.sub(r"\s+", "-", name.strip()).lower()
+
+
+# --- reading ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class _Definition:
+    name: str
+    kind: str  # one of _VALUE_KINDS
+    multi: bool
+    as_json: bool
+    default: Any
+
+
+class _Reader:
+    """State of one streaming read of a ReqIF document."""
+
+    def __init__(self, origin: str, options: Mapping[str, Any]) -> None:
+        self.origin = origin
+        self.opts = adapter_options(options, "reqif", OPTIONS)
+        self.enum_names: dict[str, str] = {}
+        self.definitions: dict[str, _Definition] = {}
+        self.types: dict[str, tuple[str, list[tuple[str, _Definition]]]] = {}
+        self.records: list[tuple] = []  # one per SPEC-OBJECT, built into Elements at the end
+        self.links: list[tuple] = []  # one per SPEC-RELATION, built into Links at the end
+        self.exact: dict[str, str] = {}  # type IDENTIFIER -> kind or relation written by tracecheck
+        self.ident_to_id: dict[str, str] = {}  # only where the id differs from IDENTIFIER
+        self.parent_of: dict[str, str] = {}  # child IDENTIFIER -> parent IDENTIFIER
+        # Objects of SPEC-HIERARCHYs that ended, by nesting depth, waiting for their parent.
+        self.waiting: dict[int, list[str]] = {}
+        self.title: str | None = None
+        self.meta: dict[str, Any] | None = None
+
+    def fail(self, line: int | None, message: str) -> InputError:
+        where = f"{self.origin}:{line}" if line else self.origin
+        return InputError(f"{where}: {message}")
+
+    def ref(self, elem: Any, children: dict[str, Any], outer: str, inner: str, what: str) -> str:
+        """The text of ``elem/outer/inner`` (both in the ReqIF namespace), stripped.
+
+        ``children`` maps ``elem``'s child tags to children (built once per record).
+        """
+        text = _leaf_text(children.get(_R + outer), _R + inner)
+        if not text or not text.strip():
+            raise self.fail(elem.sourceline, f"{what} has no {outer}/{inner}.")
+        return text.strip()
+
+    # --- declarations ------------------------------------------------------------------
+
+    def enumeration(self, elem: Any) -> None:
+        for value in elem.iter(_R + "ENUM-VALUE"):
+            ident = value.get("IDENTIFIER")
+            self.enum_names[ident] = value.get("LONG-NAME", ident)
+
+    def spec_type(self, elem: Any, relation: bool) -> None:
+        ident = elem.get("IDENTIFIER")
+        if not ident:
+            raise self.fail(elem.sourceline, "a spec type has no IDENTIFIER.")
+        long_name = elem.get("LONG-NAME") or ident
+        table = self.opts["relations" if relation else "kinds"]
+        defaults: list[tuple[str, _Definition]] = []
+        for definition in elem.iterfind(_R + "SPEC-ATTRIBUTES/*"):
+            kind = _DEFINITION_TAGS.get(definition.tag)
+            if kind is None:
+                continue
+            def_id = definition.get("IDENTIFIER")
+            entry = _Definition(
+                definition.get("LONG-NAME") or def_id,
+                kind,
+                definition.get("MULTI-VALUED", "false").strip() in ("true", "1"),
+                definition.get("DESC") == JSON_MARK,
+                None,
+            )
+            self.definitions[def_id] = entry
+            default = definition.find(_R + "DEFAULT-VALUE/*")
+            if default is not None:
+                value = self.value(default, entry, "a DEFAULT-VALUE")
+                entry = _Definition(entry.name, kind, entry.multi, entry.as_json, value)
+                self.definitions[def_id] = entry
+                defaults.append((def_id, entry))
+        self.types[ident] = (table.get(long_name) or normalise(long_name), defaults)
+
+    # --- values ------------------------------------------------------------------------
+
+    def value(self, elem: Any, definition: _Definition, what: str) -> Any:
+        kind = definition.kind
+        try:
+            if kind == "XHTML":
+                the_value = _first(elem, _R + "THE-VALUE")
+                return "" if the_value is None else flatten_xhtml(the_value)
+            if kind == "ENUMERATION":
+                names = [self.enum_names.get(r.text.strip(), r.text.strip())
+                         for r in elem.iterfind(_R + "VALUES/" + _R + "ENUM-VALUE-REF") if r.text]
+                return names if definition.multi or len(names) != 1 else names[0]
+            text = elem.get("THE-VALUE")
+            if text is None:
+                raise ValueError("THE-VALUE is missing")
+            value = _SCALAR[kind](text if kind == "STRING" else text.strip())
+            return json.loads(value) if definition.as_json else value
+        except ValueError as error:
+            raise self.fail(elem.sourceline, f"{what}: attribute {definition.name!r}: {error}.") from None
+
+    def values(self, values: Any, type_defaults: list, what: str) -> dict[str, Any]:
+        """Attribute values by definition name, defaults filled in."""
+        found: dict[str, Any] = {}
+        seen: set[str] = set()
+        for item in () if values is None else values:
+            kind = _VALUE_TAGS.get(item.tag)
+            if kind is None:
+                continue
+            def_id = ""
+            for part in item:  # DEFINITION, and THE-VALUE or VALUES for XHTML and enumerations
+                if part.tag == _DEFINITION:
+                    def_id = (_leaf_text(part, _DEFINITION_REF[kind]) or "").strip()
+                    break
+            definition = self.definitions.get(def_id)
+            if definition is None:
+                raise self.fail(item.sourceline, f"{what}: a value refers to an unknown attribute definition.")
+            seen.add(def_id)
+            if definition.kind == "STRING" and not definition.as_json and item.get("THE-VALUE") is not None:
+                found[definition.name] = item.get("THE-VALUE")
+            else:
+                found[definition.name] = self.value(item, definition, what)
+        for def_id, definition in type_defaults:
+            if def_id not in seen:
+                found.setdefault(definition.name, definition.default)
+        return found
+
+    # --- records -----------------------------------------------------------------------
+
+    def spec_object(self, elem: Any) -> None:
+        line, ident = elem.sourceline, elem.get("IDENTIFIER")
+        if not ident:
+            raise self.fail(line, "a SPEC-OBJECT has no IDENTIFIER.")
+        what = f"SPEC-OBJECT {ident!r}"
+        children = {child.tag: child for child in elem}
+        type_ref = self.ref(elem, children, "TYPE", "SPEC-OBJECT-TYPE-REF", what)
+        if type_ref not in self.types:
+            raise self.fail(line, f"{what} refers to an unknown SPEC-OBJECT-TYPE {type_ref!r}.")
+        _kind, defaults = self.types[type_ref]
+        attributes = self.values(children.get(_VALUES), defaults, what)
+        opts = self.opts
+        element_id = _as_text(attributes.pop(opts["id_attribute"], None)) or ident
+        if element_id != ident:
+            self.ident_to_id[ident] = element_id
+        text = _as_text(attributes.pop(opts["text"], None))
+        if opts["name"] == "LONG-NAME":
+            name = elem.get("LONG-NAME")
+        else:
+            name = _as_text(attributes.pop(opts["name"], None))
+        parent = _as_text(attributes.pop(opts["parent_attribute"], None))
+        self.records.append((ident, element_id, type_ref, name, text, parent, attributes, line))
+
+    def spec_relation(self, elem: Any) -> None:
+        line, ident = elem.sourceline, elem.get("IDENTIFIER") or "?"
+        what = f"SPEC-RELATION {ident!r}"
+        # One pass over the children: the hot path of the reader (most records are links).
+        source = target = type_ref = values = None
+        for child in elem:
+            tag = child.tag
+            if tag == _VALUES:
+                values = child
+            elif len(child) == 1:
+                inner = child[0]
+                if tag == _SOURCE and inner.tag == _OBJECT_REF:
+                    source = (inner.text or "").strip()
+                elif tag == _TARGET and inner.tag == _OBJECT_REF:
+                    target = (inner.text or "").strip()
+                elif tag == _TYPE and inner.tag == _RELATION_TYPE_REF:
+                    type_ref = (inner.text or "").strip()
+        if not (source and target and type_ref):  # the general path says what is missing
+            children = {child.tag: child for child in elem}
+            type_ref = self.ref(elem, children, "TYPE", "SPEC-RELATION-TYPE-REF", what)
+            source = self.ref(elem, children, "SOURCE", "SPEC-OBJECT-REF", what)
+            target = self.ref(elem, children, "TARGET", "SPEC-OBJECT-REF", what)
+        if type_ref not in self.types:
+            raise self.fail(line, f"{what} refers to an unknown SPEC-RELATION-TYPE {type_ref!r}.")
+        _relation, defaults = self.types[type_ref]
+        attributes = self.values(values, defaults, what)
+        link_id = exact_source = exact_target = None
+        if attributes:  # most relations carry none: skip the look-ups
+            link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
+            exact_source = _as_text(attributes.pop(self.opts["source_attribute"], None))
+            exact_target = _as_text(attributes.pop(self.opts["target_attribute"], None))
+        ident_to_id = self.ident_to_id
+        source = ident_to_id.get(source, source) if exact_source is None else exact_source
+        target = ident_to_id.get(target, target) if exact_target is None else exact_target
+        self.links.append((source, target, type_ref, link_id, attributes, line))
+
+    def hierarchy_end(self, elem: Any) -> None:
+        obj = self.ref(elem, {c.tag: c for c in elem}, "OBJECT", "SPEC-OBJECT-REF", "a SPEC-HIERARCHY")
+        # Children end before their parent, so when a hierarchy at depth d ends, the
+        # objects waiting at depth d + 1 are exactly its children.
+        depth = sum(1 for _ in elem.iterancestors(_HIERARCHY))
+        for child in self.waiting.pop(depth + 1, ()):
+            self.parent_of.setdefault(child, obj)
+        self.waiting.setdefault(depth, []).append(obj)
+
+    def tool_extension(self, elem: Any) -> None:
+        for entry in elem.iter(_X + "type"):
+            # Types whose kind or relation is not their normalised LONG-NAME.
+            if entry.get("ref") and entry.get("name"):
+                self.exact[entry.get("ref")] = entry.get("name")
+        model = elem.find(_X + "model")
+        if model is None:
+            return
+        self.meta = {}
+        for entry in model.iterfind(_X + "entry"):
+            text = entry.text or ""
+            kind = entry.get("type", "str")
+            convert = {"str": str, "int": int, "float": float, "bool": parse_bool}.get(kind)
+            if convert is None:
+                raise self.fail(entry.sourceline, f"model entry of unknown type {kind!r}.")
+            try:
+                self.meta[entry.get("name", "")] = convert(text)
+            except ValueError as error:
+                raise self.fail(entry.sourceline, f"model entry: {error}.") from None
+
+    def model(self) -> Model:
+        origin, ident_to_id, parent_of = self.origin, self.ident_to_id, self.parent_of
+        names = {ref: self.exact.get(ref, name) for ref, (name, _defaults) in self.types.items()}
+        elements = []
+        for ident, element_id, type_ref, name, text, parent, attributes, line in self.records:
+            if parent is None and ident in parent_of:
+                parent = ident_to_id.get(parent_of[ident], parent_of[ident])
+            elements.append(Element(element_id, names[type_ref], name, text, parent, attributes,
+                                    Location(origin, line)))
+        links = [Link(source, target, names[type_ref], link_id, attributes, Location(origin, line))
+                 for source, target, type_ref, link_id, attributes, line in self.links]
+        meta = self.meta if self.meta is not None else ({"name": self.title} if self.title else {})
+        return Model(elements, links, meta=meta, origin=origin, format="reqif")
+
+
+def _first(elem: Any, tag: str) -> Any:
+    """The first child of ``elem`` with ``tag`` (``None`` when either is missing).
+
+    ``iterchildren`` filters in C; ``find`` with a path goes through ElementPath and
+    was the reader's largest cost.
+    """
+    if elem is None:
+        return None
+    for child in elem.iterchildren(tag):
+        return child
+    return None
+
+
+def _leaf_text(outer: Any, tag: str) -> str | None:
+    """The text of the child of ``outer`` with ``tag`` (``None`` when either is missing)."""
+    if outer is None:
+        return None
+    for child in outer:  # one child in practice; plain iteration beats tag-filtered lookups
+        if child.tag == tag:
+            return child.text
+    return None
+
+
+def _as_text(value: Any) -> str | None:
+    if value is None:
+        return None
+    if isinstance(value, list):
+        return "\n".join(str(v) for v in value)
+    return format_scalar(value) if not isinstance(value, str) else value
+
+
+def flatten_xhtml(the_value: Any) -> str:
+    """XHTML content as plain text: blocks on their own lines, markup dropped.
+
+    A single ``<div>`` holding only text (what tracecheck writes) comes back verbatim;
+    anything else has each line's surrounding whitespace removed and empty lines dropped,
+    so pretty-printing differences between tools do not show up as text changes.
+    """
+    children = [c for c in the_value if isinstance(c.tag, str)]
+    if len(children) == 1 and len(children[0]) == 0 and children[0].tag == _H + "div":
+        return children[0].text or ""
+    parts: list[str] = [the_value.text or ""]
+    _walk(the_value, parts)
+    lines = (line.strip() for line in "".join(parts).splitlines())
+    return "\n".join(line for line in lines if line)
+
+
+def _walk(node: Any, parts: list[str]) -> None:
+    for child in node:
+        if isinstance(child.tag, str):
+            local = etree.QName(child).localname
+            if local == "br":
+                parts.append("\n")
+            else:
+                block = local in _BLOCKS
+                if block:
+                    parts.append("\n")
+                parts.append(child.text or "")
+                _walk(child, parts)
+                if block:
+                    parts.append("\n")
+        parts.append(child.tail or "")
+
+
+_TAGS = tuple(_R + t for t in (
+    "DATATYPE-DEFINITION-ENUMERATION", "SPEC-OBJECT-TYPE", "SPEC-RELATION-TYPE",
+    "SPECIFICATION-TYPE", "RELATION-GROUP-TYPE", "SPEC-OBJECT", "SPEC-RELATION",
+    "SPEC-HIERARCHY", "SPECIFICATION", "TITLE", "REQ-IF-TOOL-EXTENSION",
+))
+_SPEC_OBJECT, _SPEC_RELATION, _HIERARCHY = _R + "SPEC-OBJECT", _R + "SPEC-RELATION", _R + "SPEC-HIERARCHY"
+
+
+def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) -> Model:
+    """Parse ReqIF bytes into a :class:`Model` (streaming).
+
+    Raises
+    ------
+    InputError
+        Refused or malformed XML, a root that is not ``REQ-IF`` in the ReqIF 1.2
+        namespace, a reference to an unknown type or attribute definition, a value that
+        does not fit its datatype.
+    """
+    with gc_paused():  # see mapping.gc_paused
+        return _parse(data, origin, options)
+
+
+def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
+    reader = _Reader(origin, options or {})
+    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
+                               root=_R + "REQ-IF", format_name="ReqIF 1.2")
+    for _event, elem in events:
+        _dispatch(reader, elem)
+    return reader.model()
+
+
+def _dispatch(reader: _Reader, elem: Any) -> None:
+    tag = elem.tag
+    if tag == _SPEC_OBJECT:
+        reader.spec_object(elem)
+    elif tag == _SPEC_RELATION:
+        reader.spec_relation(elem)
+    elif tag == _HIERARCHY:
+        reader.hierarchy_end(elem)
+    elif tag == _R + "DATATYPE-DEFINITION-ENUMERATION":
+        reader.enumeration(elem)
+    elif tag in (_R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE"):
+        reader.spec_type(elem, relation=tag == _R + "SPEC-RELATION-TYPE")
+    elif tag == _R + "TITLE":
+        reader.title = (elem.text or "").strip() or None
+        return
+    elif tag == _R + "REQ-IF-TOOL-EXTENSION":
+        reader.tool_extension(elem)
+    xmlsafe.release(elem)
+
+
+# --- writing ---------------------------------------------------------------------------
+
+_NCNAME = re.compile(r"[A-Za-z_][A-Za-z0-9_.\-]*\Z")
+
+
+class _Identifiers:
+    """``xsd:ID`` values: unique XML names across the whole document."""
+
+    def __init__(self) -> None:
+        self.used: set[str] = set()
+        self.counters: dict[str, int] = {}
+
+    def claim(self, wanted: str | None) -> str | None:
+        if wanted is None or not _NCNAME.match(wanted) or wanted in self.used:
+            return None
+        self.used.add(wanted)
+        return wanted
+
+    def fresh(self, prefix: str) -> str:
+        n = self.counters.get(prefix, 0)
+        while True:
+            n += 1
+            candidate = f"_tc-{prefix}-{n}"
+            if candidate not in self.used:
+                self.counters[prefix] = n
+                self.used.add(candidate)
+                return candidate
+
+
+def _spelled(value: Any) -> str:
+    """The ReqIF value kind a model attribute value is written as."""
+    kind = value_type(value)
+    if kind == "list":
+        return "ENUMERATION" if all(isinstance(v, str) for v in value) else "JSON"
+    return {"bool": "BOOLEAN", "int": "INTEGER", "float": "REAL", "str": "STRING"}[kind]
+
+
+class _Plan:
+    """Everything the writer decides before the first byte: identifiers and types."""
+
+    def __init__(self, model: Model, opts: Mapping[str, Any]) -> None:
+        self.model, self.opts = model, opts
+        ids = self.ids = _Identifiers()
+        self.object_ident = [ids.claim(e.id) for e in model.elements]
+        self.first_ident: dict[str, str] = {}
+        self.relation_ident = [ids.claim(x.id) for x in model.links]
+        ids.used.update(x.source for x in model.links)
+        ids.used.update(x.target for x in model.links)
+        for n, element in enumerate(model.elements):
+            if self.object_ident[n] is None:
+                self.object_ident[n] = ids.fresh("object")
+            self.first_ident.setdefault(element.id, self.object_ident[n])
+        self.relation_ident = [r or ids.fresh("relation") for r in self.relation_ident]
+        self.expressible = _expressible_parents(model)
+        self.specials = {opts["text"], opts["id_attribute"], opts["parent_attribute"],
+                         opts["source_attribute"], opts["target_attribute"]}
+        if opts["name"] != "LONG-NAME":
+            self.specials.add(opts["name"])
+        self.object_explicit = [self._explicit_object(n, e) for n, e in enumerate(model.elements)]
+        self.endpoints: list[tuple[str, str]] = []
+        self.relation_explicit = [self._explicit_relation(x) for x in model.links]
+        self.object_types = self._types(
+            [(e.kind, e, x) for e, x in zip(model.elements, self.object_explicit, strict=True)], "object-type")
+        self.relation_types = self._types(
+            [(x.relation, x, y) for x, y in zip(model.links, self.relation_explicit, strict=True)], "relation-type")
+        self.specification_type = ids.fresh("specification-type")
+        self.enums: dict[tuple[str, str, str], dict[str, str]] = {}
+        self._plan_enums()
+        self.datatypes = {k: ids.fresh(f"datatype-{k.lower()}") for k in
+                          ("STRING", "INTEGER", "REAL", "BOOLEAN", "XHTML")}
+
+    def _explicit_object(self, n: int, element: Element) -> list[tuple[str, str]]:
+        """The id and parent values ReqIF cannot say through IDENTIFIER and nesting."""
+        explicit = []
+        if self.object_ident[n] != element.id:
+            explicit.append((self.opts["id_attribute"], element.id))
+        if element.parent is not None and not self.expressible[n]:
+            explicit.append((self.opts["parent_attribute"], element.parent))
+        return explicit
+
+    def _explicit_relation(self, link: Link) -> list[tuple[str, str]]:
+        """The link id, and ends that a reference cannot carry exactly (readers strip
+        whitespace from references), written as attributes; records the references."""
+        explicit = [] if link.id is None else [(self.opts["id_attribute"], link.id)]
+        refs = []
+        for end, option in ((link.source, "source_attribute"), (link.target, "target_attribute")):
+            ref = self.first_ident.get(end)
+            if ref is None and (end != end.strip() or not end):
+                ref = self.ids.fresh("dangling")
+                explicit.append((self.opts[option], end))
+            refs.append(ref or end)
+        self.endpoints.append((refs[0], refs[1]))
+        return explicit
+
+    def _types(self, owners: list[tuple[str, Any, list]], prefix: str) -> dict[str, dict]:
+        """Per kind (or relation): its type identifier and attribute definitions."""
+        types: dict[str, dict] = {}
+        for type_name, owner, explicit in owners:
+            entry = types.setdefault(type_name, {"ident": None, "defs": {}})
+            for name, _value in explicit:
+                entry["defs"].setdefault((name, "STRING"), None)
+            for name, kind in self._values_of(owner):
+                entry["defs"].setdefault((name, kind), None)
+        for type_name in sorted(types):
+            entry = types[type_name]
+            entry["ident"] = self.ids.fresh(prefix)
+            entry["defs"] = {key: self.ids.fresh("attribute") for key in sorted(entry["defs"])}
+        return types
+
+    def _values_of(self, owner: Any) -> list[tuple[str, str]]:
+        """(definition name, value kind) of every value ``owner`` will carry."""
+        opts, out = self.opts, []
+        is_element = isinstance(owner, Element)
+        for name, value in owner.attributes.items():
+            if name in self.specials:
+                raise InputError(
+                    f"{_describe(owner)}: attribute {name!r} has the name ReqIF uses for a "
+                    "field; rename it or change [formats.reqif]."
+                )
+            out.append((name, _spelled(value)))
+        if is_element:
+            if owner.text is not None:
+                out.append((opts["text"], "XHTML"))
+            if owner.name is not None and opts["name"] != "LONG-NAME":
+                out.append((opts["name"], "STRING"))
+        return out
+
+    def _plan_enums(self) -> None:
+        for types, owners in ((self.object_types, [(e.kind, e) for e in self.model.elements]),
+                              (self.relation_types, [(x.relation, x) for x in self.model.links])):
+            for type_name, owner in owners:
+                for name, value in owner.attributes.items():
+                    if _spelled(value) == "ENUMERATION":
+                        table = self.enums.setdefault((id(types), type_name, name), {})
+                        for item in value:
+                            table.setdefault(item, "")
+        for key in sorted(self.enums, key=lambda k: (k[1], k[2])):
+            table = self.enums[key]
+            self.enums[key] = {item: self.ids.fresh("enum-value") for item in table}
+            self.enums[key]["\0datatype"] = self.ids.fresh("datatype-enumeration")
+
+    def enum_table(self, types: dict, type_name: str, name: str) -> dict[str, str]:
+        return self.enums[(id(types), type_name, name)]
+
+
+def _describe(owner: Any) -> str:
+    if isinstance(owner, Element):
+        return f"element {owner.id!r}"
+    return f"link {owner.source} {owner.relation} {owner.target}"
+
+
+def _expressible_parents(model: Model) -> list[bool]:
+    """Whether each element's parent can be said by nesting ``SPEC-HIERARCHY``.
+
+    Not when the parent is missing, when the parent chain loops, or when the element
+    would sit deeper than :data:`MAX_DEPTH`; those parents are written as an attribute.
+    """
+    by_id = model.by_id
+    depth: dict[str, int | None] = {}
+    for start in by_id:
+        path: list[str] = []
+        on_path: set[str] = set()
+        node: str | None = start
+        base: int | None = None
+        while True:
+            if node in depth:
+                base = depth[node]
+                break
+            if node in on_path or node not in by_id:
+                base = None if node is not None else -1
+                if node in on_path:
+                    for member in path:
+                        depth[member] = None
+                    path = []
+                break
+            path.append(node)
+            on_path.add(node)
+            node = by_id[node].parent
+            if node is None:
+                base = -1
+                break
+        for member in reversed(path):
+            base = None if base is None or base + 1 > MAX_DEPTH else base + 1
+            depth[member] = base
+    flags = []
+    for element in model.elements:
+        first = by_id[element.id] is element
+        parent_depth = depth.get(element.parent) if element.parent is not None else None
+        ok = element.parent is not None and parent_depth is not None and parent_depth + 1 <= MAX_DEPTH
+        if first:
+            ok = ok and depth.get(element.id) is not None
+        flags.append(ok)
+    return flags
+
+
+def write(model: Model, options: Mapping[str, Any] | None = None, *, timestamp: str = EPOCH) -> bytes:
+    """Serialise ``model`` as a ReqIF 1.2 document (UTF-8).
+
+    Raises
+    ------
+    InputError
+        A value XML cannot carry, or an attribute named like one the mapping uses.
+    """
+    opts = adapter_options(options or {}, "reqif", OPTIONS)
+    plan = _Plan(model, opts)
+    out = io.BytesIO()
+    with etree.xmlfile(out, encoding="utf-8") as xf:
+        xf.write_declaration()
+        with xf.element(_R + "REQ-IF", nsmap={None: NAMESPACE, "xhtml": XHTML}):
+            xf.write("\n")
+            _header(xf, plan, timestamp)
+            with xf.element(_R + "CORE-CONTENT"):
+                with xf.element(_R + "REQ-IF-CONTENT"):
+                    xf.write("\n")
+                    _datatypes(xf, plan, timestamp)
+                    _spec_types(xf, plan, timestamp)
+                    _objects(xf, plan, timestamp)
+                    _relations(xf, plan, timestamp)
+                    _specification(xf, plan, timestamp)
+            xf.write("\n")
+            _extension(xf, plan)
+            xf.write("\n")
+    return out.getvalue() + b"\n"
+
+
+def _leaf(xf: Any, tag: str, text: str) -> None:
+    with xf.element(_R + tag):
+        xf.write(text)
+
+
+def _header(xf: Any, plan: _Plan, timestamp: str) -> None:
+    title = plan.model.meta.get("name")
+    with xf.element(_R + "THE-HEADER"):
+        with xf.element(_R + "REQ-IF-HEADER", IDENTIFIER=plan.ids.fresh("header")):
+            _leaf(xf, "COMMENT", "Written by tracecheck from a thread model.")
+            _leaf(xf, "CREATION-TIME", timestamp)
+            _leaf(xf, "REQ-IF-TOOL-ID", "tracecheck")
+            _leaf(xf, "REQ-IF-VERSION", "1.0")
+            _leaf(xf, "SOURCE-TOOL-ID", f"tracecheck {__version__}")
+            _leaf(xf, "TITLE", check_xml_text(str(title), "the model name") if title else "thread model")
+    xf.write("\n")
+
+
+def _identifiable(ident: str, timestamp: str, **extra: str) -> dict[str, str]:
+    attributes = {"IDENTIFIER": ident, "LAST-CHANGE": timestamp}
+    attributes.update(extra)
+    return attributes
+
+
+def _datatypes(xf: Any, plan: _Plan, timestamp: str) -> None:
+    model = plan.model
+    strings = [len(e.text or "") for e in model.elements] + [len(e.name or "") for e in model.elements]
+    ints = [v for owner in (*model.elements, *model.links) for v in owner.attributes.values()
+            if _spelled(v) == "INTEGER"]
+    for owner in (*model.elements, *model.links):
+        strings.extend(len(v) if isinstance(v, str) else len(json_list(v))
+                       for v in owner.attributes.values() if _spelled(v) in ("STRING", "JSON"))
+        strings.append(len(owner.id or "") if owner.id else 0)
+        strings.extend(len(x) for x in (getattr(owner, "parent", None),) if x)
+    with xf.element(_R + "DATATYPES"):
+        xf.write("\n")
+        kinds = plan.datatypes
+        xf.write(_empty("DATATYPE-DEFINITION-STRING", _identifiable(
+            kinds["STRING"], timestamp, **{"LONG-NAME": "text", "MAX-LENGTH": str(max(strings, default=0) or 1)})))
+        xf.write(_empty("DATATYPE-DEFINITION-INTEGER", _identifiable(
+            kinds["INTEGER"], timestamp, **{"LONG-NAME": "integer", "MIN": str(min(ints, default=0)),
+                                            "MAX": str(max(ints, default=0))})))
+        xf.write(_empty("DATATYPE-DEFINITION-REAL", _identifiable(
+            kinds["REAL"], timestamp, **{"LONG-NAME": "real", "ACCURACY": "17", "MIN": "-INF", "MAX": "INF"})))
+        xf.write(_empty("DATATYPE-DEFINITION-BOOLEAN", _identifiable(kinds["BOOLEAN"], timestamp, **{"LONG-NAME": "boolean"})))
+        xf.write(_empty("DATATYPE-DEFINITION-XHTML", _identifiable(kinds["XHTML"], timestamp, **{"LONG-NAME": "formatted text"})))
+        for (_types, type_name, name), table in sorted(plan.enums.items(), key=lambda kv: (kv[0][1], kv[0][2])):
+            attributes = _identifiable(table["\0datatype"], timestamp, **{"LONG-NAME": f"{type_name}: {name}"})
+            with xf.element(_R + "DATATYPE-DEFINITION-ENUMERATION", attributes):
+                with xf.element(_R + "SPECIFIED-VALUES"):
+                    key = 0
+                    for item, ident in table.items():
+                        if item == "\0datatype":
+                            continue
+                        with xf.element(_R + "ENUM-VALUE", _identifiable(
+                                ident, timestamp, **{"LONG-NAME": check_xml_text(item, f"enumeration value {item!r}")})):
+                            with xf.element(_R + "PROPERTIES"):
+                                xf.write(_empty("EMBEDDED-VALUE", {"KEY": str(key), "OTHER-CONTENT": ""}, tail=""))
+                        key += 1
+            xf.write("\n")
+    xf.write("\n")
+
+
+def _empty_x(tag: str, attributes: Mapping[str, str]) -> Any:
+    return etree.Element(_X + tag, attributes, nsmap={"tc": EXTENSION})
+
+
+def _empty(tag: str, attributes: Mapping[str, str], tail: str = "\n") -> Any:
+    element = etree.Element(_R + tag, attributes, nsmap={None: NAMESPACE})
+    element.tail = tail
+    return element
+
+
+def _definition_tag(kind: str) -> str:
+    return "STRING" if kind == "JSON" else kind
+
+
+def _spec_types(xf: Any, plan: _Plan, timestamp: str) -> None:
+    with xf.element(_R + "SPEC-TYPES"):
+        xf.write("\n")
+        for types, tag in ((plan.object_types, "SPEC-OBJECT-TYPE"), (plan.relation_types, "SPEC-RELATION-TYPE")):
+            for type_name in sorted(types):
+                entry = types[type_name]
+                attributes = _identifiable(entry["ident"], timestamp, **{"LONG-NAME": check_xml_text(type_name, "a kind")})
+                with xf.element(_R + tag, attributes):
+                    _definitions(xf, plan, types, type_name, entry["defs"], timestamp)
+                xf.write("\n")
+        with xf.element(_R + "SPECIFICATION-TYPE", _identifiable(
+                plan.specification_type, timestamp, **{"LONG-NAME": "thread model"})):
+            pass
+        xf.write("\n")
+    xf.write("\n")
+
+
+def _definitions(xf: Any, plan: _Plan, types: dict, type_name: str, defs: dict, timestamp: str) -> None:
+    if not defs:
+        return
+    with xf.element(_R + "SPEC-ATTRIBUTES"):
+        for (name, kind), ident in defs.items():
+            tag = _definition_tag(kind)
+            extra = {"LONG-NAME": check_xml_text(name, "an attribute name")}
+            if kind == "JSON":
+                extra["DESC"] = JSON_MARK
+            if kind == "ENUMERATION":
+                extra["MULTI-VALUED"] = "true"
+            with xf.element(_R + f"ATTRIBUTE-DEFINITION-{tag}", _identifiable(ident, timestamp, **extra)):
+                with xf.element(_R + "TYPE"):
+                    if kind == "ENUMERATION":
+                        datatype = plan.enum_table(types, type_name, name)["\0datatype"]
+                    else:
+                        datatype = plan.datatypes[tag]
+                    _leaf(xf, f"DATATYPE-DEFINITION-{tag}-REF", datatype)
+
+
+def _write_value(xf: Any, plan: _Plan, types: dict, type_name: str, def_ident: str,
+                 kind: str, name: str, value: Any, what: str) -> None:
+    tag = _definition_tag(kind)
+    if kind == "XHTML":
+        with xf.element(_R + "ATTRIBUTE-VALUE-XHTML"):
+            with xf.element(_R + "THE-VALUE"):
+                with xf.element(_H + "div"):
+                    xf.write(check_xml_text(value, what))
+            with xf.element(_R + "DEFINITION"):
+                _leaf(xf, "ATTRIBUTE-DEFINITION-XHTML-REF", def_ident)
+        return
+    if kind == "ENUMERATION":
+        table = plan.enum_table(types, type_name, name)
+        with xf.element(_R + "ATTRIBUTE-VALUE-ENUMERATION"):
+            with xf.element(_R + "DEFINITION"):
+                _leaf(xf, "ATTRIBUTE-DEFINITION-ENUMERATION-REF", def_ident)
+            with xf.element(_R + "VALUES"):
+                for item in value:
+                    _leaf(xf, "ENUM-VALUE-REF", table[item])
+        return
+    text = json_list(value) if kind == "JSON" else value if kind == "STRING" else format_scalar(value)
+    with xf.element(_R + f"ATTRIBUTE-VALUE-{tag}", {"THE-VALUE": check_xml_text(text, what)}):
+        with xf.element(_R + "DEFINITION"):
+            _leaf(xf, f"ATTRIBUTE-DEFINITION-{tag}-REF", def_ident)
+
+
+def _owner_values(xf: Any, plan: _Plan, types: dict, type_name: str, owner: Any,
+                  explicit: list[tuple[str, str]]) -> None:
+    entry = types[type_name]
+    items: list[tuple[str, str, Any]] = []
+    opts = plan.opts
+    for name, value in explicit:
+        items.append((entry["defs"][(name, "STRING")], "STRING", (name, value)))
+    if isinstance(owner, Element):
+        if owner.text is not None:
+            items.append((entry["defs"][(opts["text"], "XHTML")], "XHTML", (opts["text"], owner.text)))
+        if owner.name is not None and opts["name"] != "LONG-NAME":
+            items.append((entry["defs"][(opts["name"], "STRING")], "STRING", (opts["name"], owner.name)))
+    for name, value in owner.attributes.items():
+        kind = _spelled(value)
+        items.append((entry["defs"][(name, kind)], kind, (name, value)))
+    if not items:
+        return
+    what = _describe(owner)
+    with xf.element(_R + "VALUES"):
+        for def_ident, kind, (name, value) in items:
+            _write_value(xf, plan, types, type_name, def_ident, kind, name, value, f"{what} {name!r}")
+
+
+def _objects(xf: Any, plan: _Plan, timestamp: str) -> None:
+    opts = plan.opts
+    with xf.element(_R + "SPEC-OBJECTS"):
+        xf.write("\n")
+        for n, element in enumerate(plan.model.elements):
+            ident = plan.object_ident[n]
+            extra = {}
+            if element.name is not None and opts["name"] == "LONG-NAME":
+                extra["LONG-NAME"] = check_xml_text(element.name, f"element {element.id!r} name")
+            with xf.element(_R + "SPEC-OBJECT", _identifiable(ident, timestamp, **extra)):
+                _owner_values(xf, plan, plan.object_types, element.kind, element, plan.object_explicit[n])
+                with xf.element(_R + "TYPE"):
+                    _leaf(xf, "SPEC-OBJECT-TYPE-REF", plan.object_types[element.kind]["ident"])
+            xf.write("\n")
+    xf.write("\n")
+
+
+def _relations(xf: Any, plan: _Plan, timestamp: str) -> None:
+    with xf.element(_R + "SPEC-RELATIONS"):
+        xf.write("\n")
+        for n, link in enumerate(plan.model.links):
+            what = _describe(link)
+            with xf.element(_R + "SPEC-RELATION", _identifiable(plan.relation_ident[n], timestamp)):
+                _owner_values(xf, plan, plan.relation_types, link.relation, link, plan.relation_explicit[n])
+                source, target = plan.endpoints[n]
+                with xf.element(_R + "SOURCE"):
+                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(source, what))
+                with xf.element(_R + "TARGET"):
+                    _leaf(xf, "SPEC-OBJECT-REF", check_xml_text(target, what))
+                with xf.element(_R + "TYPE"):
+                    _leaf(xf, "SPEC-RELATION-TYPE-REF", plan.relation_types[link.relation]["ident"])
+            xf.write("\n")
+    xf.write("\n")
+
+
+def _specification(xf: Any, plan: _Plan, timestamp: str) -> None:
+    model = plan.model
+    children: dict[str, list[int]] = {}
+    roots: list[int] = []
+    for n, element in enumerate(model.elements):
+        if plan.expressible[n]:
+            children.setdefault(plan.first_ident[element.parent], []).append(n)
+        else:
+            roots.append(n)
+    with xf.element(_R + "SPECIFICATIONS"):
+        with xf.element(_R + "SPECIFICATION", _identifiable(
+                plan.ids.fresh("specification"), timestamp, **{"LONG-NAME": "thread model"})):
+            if roots:
+                with xf.element(_R + "CHILDREN"):
+                    xf.write("\n")
+                    for n in roots:
+                        _hierarchy(xf, plan, children, n, timestamp)
+            with xf.element(_R + "TYPE"):
+                _leaf(xf, "SPECIFICATION-TYPE-REF", plan.specification_type)
+    xf.write("\n")
+
+
+def _hierarchy(xf: Any, plan: _Plan, children: dict[str, list[int]], n: int, timestamp: str) -> None:
+    ident = plan.object_ident[n]
+    with xf.element(_R + "SPEC-HIERARCHY", _identifiable(plan.ids.fresh("node"), timestamp)):
+        with xf.element(_R + "OBJECT"):
+            _leaf(xf, "SPEC-OBJECT-REF", ident)
+        below = children.get(ident) if plan.first_ident.get(plan.model.elements[n].id) == ident else None
+        if below:
+            with xf.element(_R + "CHILDREN"):
+                xf.write("\n")
+                for child in below:
+                    _hierarchy(xf, plan, children, child, timestamp)
+    xf.write("\n")
+
+
+def _extension(xf: Any, plan: _Plan) -> None:
+    model = plan.model
+    with xf.element(_R + "TOOL-EXTENSIONS"):
+        with xf.element(_R + "REQ-IF-TOOL-EXTENSION"):
+            with xf.element(_X + "model", nsmap={"tc": EXTENSION}):
+                # A kind or relation the reader's normalising would change ("traces to").
+                for types in (plan.object_types, plan.relation_types):
+                    for type_name in sorted(types):
+                        if normalise(type_name) != type_name:
+                            xf.write(_empty_x("type", {"ref": types[type_name]["ident"], "name": type_name}))
+                for name, value in model.meta.items():
+                    kind = value_type(value)
+                    text = value if kind == "str" else format_scalar(value)
+                    with xf.element(_X + "entry", name=check_xml_text(str(name), "a model key"), type=kind):
+                        xf.write(check_xml_text(text, f"model {name!r}"))
+
+
+class ReqIF:
+    name = "reqif"
+    extensions = (".reqif",)
+
+    def sniff(self, head: bytes, name: str) -> bool:
+        if xmlsafe.root_name(head) == "REQ-IF":
+            return True
+        return name.lower().endswith(".reqif") and xmlsafe.looks_like_xml(head)
+
+    def read(self, data: bytes, origin: str, options: Mapping[str, Any]) -> Model:
+        return parse(data, origin, options)
+
+    def write(self, model: Model, options: Mapping[str, Any] | None = None) -> bytes:
+        return write(model, options)
+
+
+register(ReqIF())
