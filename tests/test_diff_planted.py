@@ -248,7 +248,7 @@ def test_planted_changes_on_a_small_hand_made_model(tmp_path):
     assert elements["moved"] == [{"id": "REQ-3", "old_parent": None, "new_parent": "REQ-1"}]
     assert [m["id"] for m in elements["modified"]] == ["REQ-4"]  # the move is not a modification
     words = elements["modified"][0]["changes"]["text"]["words"]
-    assert {"op": "delete", "text": "2"} in words and {"op": "insert", "text": "2.5"} in words
+    assert {"op": "delete", "text": " 2"} in words and {"op": "insert", "text": " 2.5"} in words
     assert result["links"]["relation_changed"] == [
         {"source": "REQ-3", "target": "REQ-1", "old_relation": "derives_from", "new_relation": "refines"}]
     assert _triples(result["links"]["removed"]) == {("REQ-3", "REQ-1", "derives_from")}

@@ -44,6 +44,11 @@ where = { integrity = ["C", "D"] }
 incoming = "verifies"
 from = ["test"]
 at_least = 2
+
+# A review status or a test result changing does not reopen the review of what traces
+# to the element; a change of its text or other attributes does.
+[impact]
+ignore_fields = ["attributes.status", "attributes.result"]
 """
 
 
@@ -136,3 +141,7 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
 # Later capabilities (diff, gate, coverage, history, formats, embedding) add a step here:
 # a function (demo, out, options) -> list of report file names it wrote.
 _EXTRA_STEPS: list = []
+
+from tracecheck.diff.demo_step import diff_step  # noqa: E402
+
+_EXTRA_STEPS.append(diff_step)

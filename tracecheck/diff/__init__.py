@@ -105,9 +105,12 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
 def _impact(old: Model, new: Model, elements: dict[str, list], mapping: dict[str, str], config: Config) -> list:
     """One entry per (impacted element, changed element), with the connecting path."""
     rules = impact_rules(config)
+    # Fields whose change does not reopen a review (a review status, a test result).
+    ignored = set(config.section("impact").get("ignore_fields", ()))
     causes: dict[str, set[str]] = {}
     for entry in elements["modified"]:
-        causes.setdefault(entry["id"], set()).add("modified")
+        if set(entry["changes"]) - ignored:
+            causes.setdefault(entry["id"], set()).add("modified")
     for entry in elements["moved"]:
         causes.setdefault(entry["id"], set()).add("moved")
     entries = []
@@ -131,10 +134,11 @@ def _findings(old: Model, new: Model, config: Config) -> dict[str, list[dict[str
     """Findings new in ``new`` and resolved since ``old``, compared by fingerprint."""
     before = {f.fingerprint: f for f in run_rules(old, config)}
     after = {f.fingerprint: f for f in run_rules(new, config)}
-    return {
-        "new": [after[k].to_json() for k in sorted(after.keys() - before.keys())],
-        "resolved": [before[k].to_json() for k in sorted(before.keys() - after.keys())],
-    }
+
+    def ordered(findings, keys):
+        return [f.to_json() for f in sorted((findings[k] for k in keys), key=lambda f: (f.rule, f.elements, f.fingerprint))]
+
+    return {"new": ordered(after, after.keys() - before.keys()), "resolved": ordered(before, before.keys() - after.keys())}
 
 
 def diff_models(

@@ -83,8 +83,10 @@ def svg(result: DiffResult) -> str:
 
 
 def _words(words: list[dict[str, str]]) -> str:
+    from tracecheck.report.diff import word_pieces
+
     tag = {"equal": "{}", "delete": "<del>{}</del>", "insert": "<ins>{}</ins>"}
-    return " ".join(tag[w["op"]].format(escape(w["text"])) for w in words)
+    return "".join(gap + tag[op].format(escape(text)) for gap, op, text in word_pieces(words))
 
 
 def _value(value) -> str:
