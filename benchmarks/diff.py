@@ -44,7 +44,8 @@ def second_version(path: Path, out: Path, seed: int = 11) -> dict[str, int]:
     share = len(picks) // 7
     planted = {"text": 0, "attributes": 0, "moved": 0, "renumbered": 0, "removed": 0}
     parents = [e["id"] for e in elements[:10]]
-    removed = set()
+    removed: set[str] = set()
+    renames: dict[str, str] = {}
     for k, index in enumerate(picks):
         element = elements[index]
         group = ("text", "attributes", "moved", "renumbered", "removed", "text", "attributes")[k // max(share, 1) % 7]
@@ -55,16 +56,16 @@ def second_version(path: Path, out: Path, seed: int = 11) -> dict[str, int]:
         elif group == "moved" and element["kind"] == "requirement":
             element["parent"] = rng.choice(parents)
         elif group == "renumbered":
-            old = element["id"]
-            element["id"] = f"{old}-R"
-            for link in doc["links"]:
-                link["source"] = element["id"] if link["source"] == old else link["source"]
-                link["target"] = element["id"] if link["target"] == old else link["target"]
+            old_id = element["id"]
+            element["id"] = renames[old_id] = f"{old_id}-R"
         elif group == "removed" and element["id"] not in parents:
             removed.add(element["id"])
         else:
             continue
         planted[group] += 1
+    for link in doc["links"]:
+        link["source"] = renames.get(link["source"], link["source"])
+        link["target"] = renames.get(link["target"], link["target"])
     doc["elements"] = [e for e in elements if e["id"] not in removed]
     doc["links"] = [lk for lk in doc["links"] if lk["source"] not in removed and lk["target"] not in removed]
     for i in range(n // 200):

@@ -113,16 +113,21 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     same two ends when each is the only one there; both stay in ``added``/``removed``
     so those two lists remain the plain set difference of triples.
     """
-    carried: dict[tuple[str, str, str], tuple[str, str, str]] = {}
-    for link in old.links:
-        key = (mapping.get(link.source, link.source), mapping.get(link.target, link.target), link.relation)
-        carried.setdefault(key, link.triple)
-    now = {link.triple for link in new.links}
-    removed = sorted(carried[k] for k in carried.keys() - now)
-    added = sorted(now - carried.keys())
+    # Plain set algebra on triples; only links touching a re-identified element need
+    # carrying into the new ids (matched ids are mostly unchanged).
+    renamed = {o: n for o, n in mapping.items() if o != n}
+    before = {(lk.source, lk.target, lk.relation) for lk in old.links}
+    origin: dict[tuple[str, str, str], tuple[str, str, str]] = {}
+    if renamed:
+        touched = {t for t in before if t[0] in renamed or t[1] in renamed}
+        origin = {(renamed.get(s, s), renamed.get(t, t), r): (s, t, r) for s, t, r in touched}
+        before = (before - touched) | set(origin)
+    now = {(lk.source, lk.target, lk.relation) for lk in new.links}
+    removed = sorted(origin.get(k, k) for k in before - now)
+    added = sorted(now - before)
     gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
-    for key in carried.keys() - now:
-        gone[key[:2]].append(carried[key])
+    for key in before - now:
+        gone[key[:2]].append(origin.get(key, key))
     came: dict[tuple[str, str], list[str]] = defaultdict(list)
     for s, t, r in added:
         came[(s, t)].append(r)
