@@ -54,7 +54,7 @@ def second_version(path: Path, out: Path, seed: int = 11) -> dict[str, int]:
         elif group == "attributes":
             element["attributes"]["status"] = "reviewed"
         elif group == "moved" and element["kind"] == "requirement":
-            element["parent"] = rng.choice(parents)
+            element["parent"] = rng.choice([p for p in parents if p not in (element.get("parent"), element["id"])])
         elif group == "renumbered":
             old_id = element["id"]
             element["id"] = renames[old_id] = f"{old_id}-R"

@@ -121,12 +121,14 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     if renamed:
         touched = {t for t in before if t[0] in renamed or t[1] in renamed}
         origin = {(renamed.get(s, s), renamed.get(t, t), r): (s, t, r) for s, t, r in touched}
-        before = (before - touched) | set(origin)
+        before -= touched
+        before |= origin.keys()
     now = {(lk.source, lk.target, lk.relation) for lk in new.links}
-    removed = sorted(origin.get(k, k) for k in before - now)
+    lost = before - now
+    removed = sorted(origin.get(k, k) for k in lost)
     added = sorted(now - before)
     gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
-    for key in before - now:
+    for key in lost:
         gone[key[:2]].append(origin.get(key, key))
     came: dict[tuple[str, str], list[str]] = defaultdict(list)
     for s, t, r in added:
