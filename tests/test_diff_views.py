@@ -105,6 +105,8 @@ def test_bad_inputs_are_exit_2(tmp_path):
         result = CliRunner().invoke(cli, ["diff", *args], input="{}", catch_exceptions=False)
         assert result.exit_code == 2, args
         assert "Traceback" not in result.stderr and result.stderr.strip(), args
+    climbing = CliRunner().invoke(cli, ["diff", "../missing.json", "good.json"], catch_exceptions=False)
+    assert climbing.exit_code == 2 and "../missing.json" in climbing.stderr and "range" not in climbing.stderr
     assert (tmp_path / "good.json").read_text() == good.read_text()  # nothing the user owns touched
 
 

@@ -20,12 +20,20 @@ def sides(old: str, new: str | None) -> tuple[str, str]:
     ``REV1:PATH`` and ``REV2:PATH``."""
     if new is None:
         raise UsageError("diff needs two models (OLD NEW) or a revision range and a path (REV1..REV2 PATH).")
-    if ".." in old and not os.path.exists(old) and ":" not in old:
+    if _is_range(old):
         first, _, second = old.partition("..")
         if not first or not second or ".." in second:
             raise UsageError(f"{old}: a revision range is written REV1..REV2, both revisions given.")
         return f"{first}:{new}", f"{second}:{new}"
     return old, new
+
+
+def _is_range(spec: str) -> bool:
+    """REV1..REV2, not a path that climbs a folder ("../old.json", "a/../b.json")."""
+    if ".." not in spec or ":" in spec or os.path.exists(spec):
+        return False
+    first, _, second = spec.partition("..")
+    return not (first == "" and second.startswith(("/", "\\")) or first.endswith(("/", "\\")))
 
 
 @contextmanager
