@@ -141,3 +141,13 @@ def test_picture_pages_beyond_the_page_size_and_draws_every_change_once():
     for page in picture.pages:  # one row per element in each column: no two labels overlap
         places = [(n[3], n[4]) for n in page.nodes]
         assert len(places) == len(set(places))
+
+
+def test_json_view_is_the_result_document(stages):
+    # Oracle: Python's json module reads back exactly the document the result holds.
+    from tracecheck.commands.common import load
+    from tracecheck.report import RenderOptions, render
+
+    old, new = load("detailed-design.json"), load("qualification.json")
+    result = diff_models(old.model, new.model, new.config, with_picture=False)
+    assert json.loads(render("diff", "json", result, RenderOptions())) == json.loads(json.dumps(result.to_json()))

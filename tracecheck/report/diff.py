@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 from rich import box
 from rich.padding import Padding
 from rich.table import Table
@@ -9,7 +11,7 @@ from rich.text import Text
 
 from tracecheck.diff import CAUTION, DiffResult
 from tracecheck.report import RenderOptions, renderer
-from tracecheck.report.check import dump_json, md_escape
+from tracecheck.report.check import md_escape
 from tracecheck.report.console import to_text
 
 __all__ = ["diff_json", "diff_text", "diff_markdown", "headline", "groups"]
@@ -19,9 +21,28 @@ _MARK = {"added": "+", "removed": "-", "modified": "~", "moved": ">", "reidentif
 _STYLE = {"added": "green", "removed": "red", "modified": "yellow", "moved": "cyan", "reidentified": "magenta"}
 
 
+def _compact(value) -> str:
+    return json.dumps(value, ensure_ascii=False, separators=(", ", ": "))
+
+
+def _lines(value, indent: str = "") -> str:
+    """JSON with objects laid out key by key and each list item on one line.
+
+    Readable and line-diffable like an indented dump, but each item is written by the
+    C encoder (``indent`` forces the pure-Python one: 2.8 s of a 100k-element diff).
+    """
+    inner = indent + "  "
+    if isinstance(value, dict) and value:
+        body = ",\n".join(f"{inner}{_compact(k)}: {_lines(v, inner)}" for k, v in value.items())
+        return "{\n" + body + "\n" + indent + "}"
+    if isinstance(value, list) and value:
+        return "[\n" + ",\n".join(inner + _compact(item) for item in value) + "\n" + indent + "]"
+    return _compact(value)
+
+
 @renderer("diff", "json")
 def diff_json(result: DiffResult, options: RenderOptions) -> str:
-    return dump_json(result.to_json())
+    return _lines(result.to_json()) + "\n"
 
 
 def headline(result: DiffResult) -> str:
