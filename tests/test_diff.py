@@ -230,3 +230,11 @@ def test_word_diff_runs_rebuild_both_texts(old_words, new_words):
     assert "".join(r["text"] for r in runs if r["op"] != "delete") == " ".join(new.split())
     assert "".join("".join(r["text"] for r in runs if r["op"] != "insert").split()) == "".join(old.split())
     assert all(r["op"] in ("equal", "delete", "insert") and r["text"].strip() for r in runs)
+
+
+def test_an_attribute_changing_type_only_is_a_modification():
+    # 1, 1.0 and True are equal in Python but different values in the export (JSON).
+    old = Model([Element("TST-1", "test", "Heave rig", attributes={"runs": 1, "rated": 1.0})], [])
+    new = Model([Element("TST-1", "test", "Heave rig", attributes={"runs": True, "rated": 1.0})], [])
+    (entry,) = diff_models(old, new).elements["modified"]
+    assert entry["changes"] == {"attributes.runs": {"old": 1, "new": True}}
