@@ -238,3 +238,13 @@ def test_an_attribute_changing_type_only_is_a_modification():
     new = Model([Element("TST-1", "test", "Heave rig", attributes={"runs": True, "rated": 1.0})], [])
     (entry,) = diff_models(old, new).elements["modified"]
     assert entry["changes"] == {"attributes.runs": {"old": 1, "new": True}}
+
+
+def test_the_documented_examples_hold():
+    import doctest
+
+    from tracecheck.diff import matching, structural
+
+    for module in (matching, structural):
+        outcome = doctest.testmod(module)
+        assert outcome.attempted > 0 and outcome.failed == 0, module.__name__

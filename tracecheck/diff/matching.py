@@ -312,13 +312,24 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     -----
     Ids shared by both models are matched first, whatever their content. The remaining
     old elements are scored against new elements of the same kind that share a token
-    or a mapped neighbour (an inverted index keeps this near linear); each old element
-    keeps its best few candidates; the assignment maximises the summed score
-    (Edmonds 1965, via networkx) and pairs below ``options.threshold`` are dropped.
+    or a mapped neighbour (an inverted index keeps this near linear); pairs below
+    ``options.threshold`` are dropped and each old element keeps its best few
+    candidates; the one-to-one assignment maximises the summed gain above the
+    threshold (Edmonds 1965, via networkx).
+
+    Examples
+    --------
+    >>> from tracecheck.model import Element, Link
+    >>> old = Model([Element("REQ-SW-031", "requirement", "Heartbeat", "The software shall supervise the heartbeat.")], [])
+    >>> new = Model([Element("REQ-SW-131", "requirement", "Heartbeat", "The software shall supervise the heartbeat.")], [])
+    >>> match_elements(old, new).reidentified
+    [('REQ-SW-031', 'REQ-SW-131', 1.0)]
 
     References
     ----------
-    .. [1] P. Jaccard, "Distribution de la flore alpine", 1901.
+    .. [1] P. Jaccard, "Distribution de la flore alpine dans le bassin des Dranses et
+       dans quelques régions voisines", Bull. Soc. Vaudoise Sci. Nat. 37, 1901 (cited
+       from memory).
     .. [2] J. Edmonds, "Paths, trees, and flowers", Canad. J. Math. 17, 1965.
     """
     options = options or MatchOptions()
