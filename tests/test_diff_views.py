@@ -151,14 +151,3 @@ def test_json_view_is_the_result_document(stages):
     old, new = load("detailed-design.json"), load("qualification.json")
     result = diff_models(old.model, new.model, new.config, with_picture=False)
     assert json.loads(render("diff", "json", result, RenderOptions())) == json.loads(json.dumps(result.to_json()))
-
-
-def test_checking_the_old_side_in_a_second_process_changes_nothing(stages, monkeypatch):
-    import tracecheck.diff as diff_package
-    from tracecheck.commands.common import load
-
-    old, new = load("detailed-design.json"), load("qualification.json")
-    alone = diff_models(old.model, new.model, new.config, with_picture=False).to_json()
-    monkeypatch.setattr(diff_package, "_PARALLEL_FROM", 0)
-    forked = diff_models(old.model, new.model, new.config, with_picture=False).to_json()
-    assert forked == alone and forked["findings"]["resolved"]

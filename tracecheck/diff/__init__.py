@@ -6,10 +6,7 @@ call it); :class:`DiffResult` is what the renderers read.
 
 from __future__ import annotations
 
-import multiprocessing
-import sys
 from collections import Counter
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -141,53 +138,21 @@ def _impact(old: Model, new: Model, elements: dict[str, list], mapping: dict[str
     return sorted(entries, key=lambda e: (e["element"], e["because"]))
 
 
-def _side_checks(model: Model, config: Config) -> tuple[dict[str, float | None], dict[str, tuple]]:
-    """Coverage percent per declaration, and findings by fingerprint as (sort key,
-    JSON), of one side: plain data, so a worker process can hand it back."""
-    percents = {r.declaration.name: r.percent for r in evaluate_all(model, config.declarations)}
-    findings = {f.fingerprint: ((f.rule, f.elements, f.fingerprint), f.to_json()) for f in run_rules(model, config)}
-    return percents, findings
+def _coverage(old: Model, new: Model, config: Config) -> dict[str, dict[str, float | None]]:
+    before = {r.declaration.name: r.percent for r in evaluate_all(old, config.declarations)}
+    after = {r.declaration.name: r.percent for r in evaluate_all(new, config.declarations)}
+    return {name: {"old": before.get(name), "new": after.get(name)} for name in sorted(before.keys() | after.keys())}
 
 
-# Models at least this large have the old side checked in a second process while
-# this one checks the new side (fork start method only: the child inherits the model
-# instead of receiving it pickled). Below it the start-up costs more than it saves.
-_PARALLEL_FROM = 20_000
-_FORKED: tuple[Model, Config] | None = None
-
-
-def _forked_side_checks():
-    assert _FORKED is not None
-    return _side_checks(*_FORKED)
-
-
-def _both_sides(old: Model, new: Model, config: Config) -> tuple[tuple, tuple]:
-    global _FORKED
-    fork = sys.platform.startswith("linux") and "fork" in multiprocessing.get_all_start_methods()
-    if not fork or len(old.by_id) < _PARALLEL_FROM:
-        return _side_checks(old, config), _side_checks(new, config)
-    _FORKED = (old, config)
-    try:
-        with ProcessPoolExecutor(max_workers=1, mp_context=multiprocessing.get_context("fork")) as pool:
-            before = pool.submit(_forked_side_checks)
-            after = _side_checks(new, config)
-            return before.result(), after
-    finally:
-        _FORKED = None
-
-
-def _checks(old: Model, new: Model, config: Config) -> tuple[dict, dict[str, list[dict[str, Any]]]]:
-    """Coverage before -> after per declaration, and the findings new in ``new`` and
-    resolved since ``old`` (compared by fingerprint), from the rule engine on each side."""
-    (percents_old, before), (percents_new, after) = _both_sides(old, new, config)
-    coverage = {name: {"old": percents_old.get(name), "new": percents_new.get(name)}
-                for name in sorted(percents_old.keys() | percents_new.keys())}
+def _findings(old: Model, new: Model, config: Config) -> dict[str, list[dict[str, Any]]]:
+    """Findings new in ``new`` and resolved since ``old``, compared by fingerprint."""
+    before = {f.fingerprint: f for f in run_rules(old, config)}
+    after = {f.fingerprint: f for f in run_rules(new, config)}
 
     def ordered(findings, keys):
-        return [findings[k][1] for k in sorted(keys, key=lambda k: findings[k][0])]
+        return [f.to_json() for f in sorted((findings[k] for k in keys), key=lambda f: (f.rule, f.elements, f.fingerprint))]
 
-    return coverage, {"new": ordered(after, after.keys() - before.keys()),
-                      "resolved": ordered(before, before.keys() - after.keys())}
+    return {"new": ordered(after, after.keys() - before.keys()), "resolved": ordered(before, before.keys() - after.keys())}
 
 
 def diff_models(
@@ -208,15 +173,14 @@ def diff_models(
     kinds = {i: (new.by_id.get(i) or old.by_id[i]).kind for i in changed_ids}
     links = link_changes(old, new, matching.mapping)
     impact = _impact(old, new, elements, matching.mapping, config)
-    coverage, findings = _checks(old, new, config) if with_checks else ({}, {"new": [], "resolved": []})
     return DiffResult(
         old.origin,
         new.origin,
         elements,
         links,
         impact,
-        coverage,
-        findings,
+        _coverage(old, new, config) if with_checks else {},
+        _findings(old, new, config) if with_checks else {"new": [], "resolved": []},
         kinds,
         {"old_elements": len(old.by_id), "new_elements": len(new.by_id),
          "old_links": len(old.links), "new_links": len(new.links)},
