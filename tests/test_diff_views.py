@@ -118,11 +118,11 @@ def test_html_is_self_contained_with_a_legend_and_distinct_markers(stages):
     legend = legend[:legend.index("</svg>")]
     markers = re.findall(r'<(polygon|rect|circle) [^>]*?(?:fill|stroke)="(#[0-9a-f]{6})"', legend)
     # added, removed, modified, impacted: four different shapes' colours, all different
-    statuses = ["added", "removed", "modified", "impacted"]
-    assert all(s in legend for s in statuses)
+    labels = {"added": ">added<", "removed": ">removed<", "modified": ">modified", "impacted": ">needs re-review<"}
+    assert all(label in legend for label in labels.values())
     looks = {}
-    for status in statuses:
-        before = legend[:legend.index(f">{status}<")]
+    for status, label in labels.items():
+        before = legend[:legend.index(label)]
         shape = re.findall(r"<(polygon points=\"[^\"]+\"|rect|circle)[^>]*?(#[0-9a-f]{6})", before)[-1]
         looks[status] = shape
     assert len({c for _, c in looks.values()}) == 4

@@ -47,14 +47,23 @@ def _shape(status: str, x: float, y: float, r: float = 6) -> str:
     return f'<circle cx="{x:.1f}" cy="{y:.1f}" r="{r * 0.5:.1f}" fill="{fill}"/>'
 
 
+_LEGEND_LABEL = {"modified": "modified, moved or re-identified", "impacted": "needs re-review",
+                 "context": "unchanged neighbour"}
+
+
 def _legend() -> str:
-    items = []
-    for n, (status, _) in enumerate(_LOOK.items()):
-        x = 20 + n * 130
-        items.append(_shape(status, x, 16) + f'<text x="{x + 12}" y="20" font-size="12">{status}</text>')
-    items.append('<line x1="670" y1="16" x2="700" y2="16" stroke="#b3261e" stroke-dasharray="6 4" stroke-width="1.5"/>'
-                 '<text x="706" y="20" font-size="12">removed link</text>')
-    return f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 820 32" width="820" height="32" role="img" aria-label="legend">{"".join(items)}</svg>'
+    items, x = [], 14
+    for status in _LOOK:
+        label = _LEGEND_LABEL.get(status, status)
+        items.append(_shape(status, x, 16) + f'<text x="{x + 12}" y="20" font-size="12">{escape(label)}</text>')
+        x += 40 + 7 * len(label)
+    for state, (colour, dash) in _EDGE.items():
+        dashed = f' stroke-dasharray="{dash}"' if dash else ""
+        items.append(f'<line x1="{x - 6}" y1="16" x2="{x + 24}" y2="16" stroke="{colour}" stroke-width="1.5"{dashed}/>'
+                     f'<text x="{x + 30}" y="20" font-size="12">{"unchanged" if state == "kept" else state} link</text>')
+        x += 130
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {x} 32" width="{x}" height="32" role="img" '
+            f'aria-label="legend" font-family="sans-serif">{"".join(items)}</svg>')
 
 
 _COLUMN_WIDTH, _ROW, _TOP, _LEFT = 230, 16, 34, 14
