@@ -87,8 +87,8 @@ def _page_svg(page, number: int, total: int) -> str:
         (x1, y1), (x2, y2) = place[s], place[t]
         colour, dash = _EDGE[state]
         dashed = f' stroke-dasharray="{dash}"' if dash else ""
-        if x1 == x2:  # same column (derives_from, part_of): an arc to the right
-            bend = x1 + 30 + min(abs(y2 - y1) / 4, 60)
+        if x1 == x2:  # same column (derives_from, part_of): an arc on the free left side
+            bend = x1 - 16 - min(abs(y2 - y1) / 5, 90)
             shape = f'<path d="M{x1:.1f},{y1:.1f} Q{bend:.1f},{(y1 + y2) / 2:.1f} {x2:.1f},{y2:.1f}" fill="none"'
         else:  # from the end of the left label to just before the right marker
             (x1, y1, left), (x2, y2) = sorted([(x1, y1, s), (x2, y2, t)])[0], sorted([(x1, y1), (x2, y2)])[1]
