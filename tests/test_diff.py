@@ -13,6 +13,7 @@ from hypothesis import strategies as st
 from tests.conftest import git, write_thread
 from tracecheck.cli import cli
 from tracecheck.diff import diff_models
+from tracecheck.diff.structural import word_diff
 from tracecheck.model import Element, Link, Model
 
 KINDS = ["requirement", "function", "component", "test", "hazard"]
@@ -155,8 +156,8 @@ def test_planted_changes_are_all_found_and_nothing_else(tmp_path):
     changes = elements["modified"][0]["changes"]
     assert set(changes) == {"text", "attributes.integrity"}
     assert changes["attributes.integrity"] == {"old": "C", "new": "D"}
-    assert {"op": "delete", "text": "1"} in changes["text"]["words"]
-    assert {"op": "insert", "text": "0.5"} in changes["text"]["words"]
+    assert {"op": "delete", "text": " 1"} in changes["text"]["words"]
+    assert {"op": "insert", "text": " 0.5"} in changes["text"]["words"]
     assert doc["links"]["added"] == [{"source": "TST-1", "target": "REQ-20", "relation": "verifies"}]
     assert doc["links"]["removed"] == [{"source": "CMP-1", "target": "REQ-3", "relation": "satisfies"}]
     impacted = {(e["element"], e["because"]) for e in doc["impact"]}
@@ -216,3 +217,34 @@ def test_revision_range_reads_both_sides_from_git(tmp_path):
     assert json.loads(explicit.stdout)["elements"] == doc["elements"]
     unknown = run("diff", "no-such-stage..detailed-design", "model/thread.json")
     assert unknown.exit_code == 2 and "no-such-stage" in unknown.stderr
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.sampled_from(WORDS + ["0.5", "s.", "(A/s)", ",", "degC;"]), max_size=12),
+       st.lists(st.sampled_from(WORDS + ["0.5", "s.", "(A/s)", ",", "degC;"]), max_size=12))
+def test_word_diff_runs_rebuild_both_texts(old_words, new_words):
+    old, new = " ".join(old_words), "  ".join(new_words)  # the new side also reflowed
+    runs = word_diff(old, new)
+    # Oracle: the texts themselves. The new side comes back with whitespace normalised;
+    # the old side up to the spacing around punctuation marks.
+    assert "".join(r["text"] for r in runs if r["op"] != "delete") == " ".join(new.split())
+    assert "".join("".join(r["text"] for r in runs if r["op"] != "insert").split()) == "".join(old.split())
+    assert all(r["op"] in ("equal", "delete", "insert") and r["text"].strip() for r in runs)
+
+
+def test_an_attribute_changing_type_only_is_a_modification():
+    # 1, 1.0 and True are equal in Python but different values in the export (JSON).
+    old = Model([Element("TST-1", "test", "Heave rig", attributes={"runs": 1, "rated": 1.0})], [])
+    new = Model([Element("TST-1", "test", "Heave rig", attributes={"runs": True, "rated": 1.0})], [])
+    (entry,) = diff_models(old, new).elements["modified"]
+    assert entry["changes"] == {"attributes.runs": {"old": 1, "new": True}}
+
+
+def test_the_documented_examples_hold():
+    import doctest
+
+    from tracecheck.diff import matching, structural
+
+    for module in (matching, structural):
+        outcome = doctest.testmod(module)
+        assert outcome.attempted > 0 and outcome.failed == 0, module.__name__

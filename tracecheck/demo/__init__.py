@@ -44,6 +44,11 @@ where = { integrity = ["C", "D"] }
 incoming = "verifies"
 from = ["test"]
 at_least = 2
+
+# A review status or a test result changing does not reopen the review of what traces
+# to the element; a change of its text or other attributes does.
+[impact]
+ignore_fields = ["attributes.status", "attributes.result"]
 """
 
 
@@ -153,3 +158,7 @@ _EXTRA_STEPS.append(_gate_step)
 from tracecheck.demo.formats_step import formats_step  # noqa: E402  (after _EXTRA_STEPS exists)
 
 _EXTRA_STEPS.append(formats_step)
+
+from tracecheck.diff.demo_step import diff_step  # noqa: E402
+
+_EXTRA_STEPS.append(diff_step)

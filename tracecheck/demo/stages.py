@@ -231,8 +231,6 @@ def _software(t: _Thread, stage: int) -> None:
               level="software", integrity="QM", status=_status(stage))
     for n in range(1, count + 1):
         number = n + 100 if stage >= 3 and n in (31, 32) else n
-        if stage == 2 and n in (31, 32):
-            continue
         topic = ("current set-point", "voltage limit", "contactor sequence", "heartbeat", "alarm", "log record")[n % 6]
         rid = f"REQ-SW-{number:03d}"
         text = f"The charge controller software shall handle the {topic} of channel {n} within one 10 ms control cycle."

@@ -16,7 +16,7 @@ from tracecheck.diff.impact import impact_rules, impacted
 from tracecheck.diff.matching import Matching, MatchOptions, match_elements
 from tracecheck.diff.picture import Picture, neighbourhood_picture
 from tracecheck.diff.structural import field_changes, link_changes, moves
-from tracecheck.model import Model
+from tracecheck.model import Element, Model
 from tracecheck.rules.engine import run_rules
 
 __all__ = ["DiffResult", "diff_models", "CAUTION"]
@@ -82,11 +82,25 @@ class DiffResult:
         }
 
 
+def _same_fields(a: Element, b: Element) -> bool:
+    """Kind, name, text and attributes equal, attribute value types included (1, 1.0
+    and true compare equal in Python but not in the export)."""
+    if a.kind != b.kind or a.name != b.name or a.text != b.text or a.attributes != b.attributes:
+        return False
+    # Types in key order: a reordered but equal dict falls through to field_changes,
+    # which finds nothing; this only has to be right when it answers True.
+    return list(a.attributes) == list(b.attributes) and list(map(type, a.attributes.values())) == list(
+        map(type, b.attributes.values()))
+
+
 def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list]:
     mapping = matching.mapping
     image = set(mapping.values())
     modified = []
-    for old_id, new_id in sorted(mapping.items(), key=lambda p: p[1]):
+    # Most matched pairs are unchanged: a cheap equality on the compared fields skips
+    # them before the field-by-field comparison.
+    candidates = [(o, n) for o, n in mapping.items() if not _same_fields(old.by_id[o], new.by_id[n])]
+    for old_id, new_id in sorted(candidates, key=lambda p: p[1]):
         changes = field_changes(old.by_id[old_id], new.by_id[new_id])
         if changes:
             entry: dict[str, Any] = {"id": new_id, "changes": changes}
@@ -105,9 +119,12 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
 def _impact(old: Model, new: Model, elements: dict[str, list], mapping: dict[str, str], config: Config) -> list:
     """One entry per (impacted element, changed element), with the connecting path."""
     rules = impact_rules(config)
+    # Fields whose change does not reopen a review (a review status, a test result).
+    ignored = set(config.section("impact").get("ignore_fields", ()))
     causes: dict[str, set[str]] = {}
     for entry in elements["modified"]:
-        causes.setdefault(entry["id"], set()).add("modified")
+        if set(entry["changes"]) - ignored:
+            causes.setdefault(entry["id"], set()).add("modified")
     for entry in elements["moved"]:
         causes.setdefault(entry["id"], set()).add("moved")
     entries = []
@@ -131,10 +148,11 @@ def _findings(old: Model, new: Model, config: Config) -> dict[str, list[dict[str
     """Findings new in ``new`` and resolved since ``old``, compared by fingerprint."""
     before = {f.fingerprint: f for f in run_rules(old, config)}
     after = {f.fingerprint: f for f in run_rules(new, config)}
-    return {
-        "new": [after[k].to_json() for k in sorted(after.keys() - before.keys())],
-        "resolved": [before[k].to_json() for k in sorted(before.keys() - after.keys())],
-    }
+
+    def ordered(findings, keys):
+        return [f.to_json() for f in sorted((findings[k] for k in keys), key=lambda f: (f.rule, f.elements, f.fingerprint))]
+
+    return {"new": ordered(after, after.keys() - before.keys()), "resolved": ordered(before, before.keys() - after.keys())}
 
 
 def diff_models(
@@ -150,7 +168,9 @@ def diff_models(
     config = config or Config()
     matching = match_elements(old, new, MatchOptions.from_section(config.section("diff")))
     elements = _element_lists(old, new, matching)
-    kinds = {i: e.kind for i, e in old.by_id.items()} | {i: e.kind for i, e in new.by_id.items()}
+    changed_ids = set(elements["added"]) | set(elements["removed"]) | {
+        e.get("id", e.get("new")) for c in ("modified", "moved", "reidentified") for e in elements[c]}
+    kinds = {i: (new.by_id.get(i) or old.by_id[i]).kind for i in changed_ids}
     links = link_changes(old, new, matching.mapping)
     impact = _impact(old, new, elements, matching.mapping, config)
     return DiffResult(

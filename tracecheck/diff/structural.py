@@ -13,27 +13,51 @@ from tracecheck.model import Element, Model
 __all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
 
 MISSING = None  # an absent field or attribute is reported as null
-_SPLIT = re.compile(r"\S+")
+# A word (with inner dots, commas, hyphens, apostrophes, slashes: "0.5", "set-point",
+# "A/s"), or one mark of punctuation, so "cycle." against "cycle and" changes one word.
+_TOKEN = re.compile(r"\w+(?:[.,'/-]\w+)*|[^\w\s]")
+
+
+def _tokens(text: str | None) -> list[tuple[str, str]]:
+    """(gap, token): gap is " " where whitespace preceded the token, else ""."""
+    found, end = [], 0
+    for match in _TOKEN.finditer(text or ""):
+        found.append((" " if match.start() > end and found else "", match.group()))
+        end = match.end()
+    return found
+
+
+def _run(op: str, tokens: list[tuple[str, str]]) -> dict[str, str]:
+    return {"op": op, "text": "".join(gap + token for gap, token in tokens)}
 
 
 def word_diff(old: str | None, new: str | None) -> list[dict[str, str]]:
     """Word-level diff of two texts as runs ``{"op": equal|delete|insert, "text"}``.
 
-    Whitespace is normalised (a reflowed paragraph is unchanged word by word); the runs
-    come from :class:`difflib.SequenceMatcher` over the word lists, with autojunk off so
-    frequent words ("the", "shall") are still aligned.
+    Texts are split into words and punctuation marks; whitespace only separates (a
+    reflowed paragraph is unchanged word by word). The runs come from
+    :class:`difflib.SequenceMatcher` over the token lists, with autojunk off so
+    frequent words ("the", "shall") are still aligned. A run's text starts with one
+    space when whitespace separated it from what precedes it, so concatenating the
+    ``equal`` and ``insert`` runs gives the new text with its whitespace normalised
+    (``equal`` and ``delete`` runs: the old one, up to spacing around punctuation).
+
+    Examples
+    --------
+    >>> word_diff("stop within 1 s.", "stop within 0.5 s.")
+    [{'op': 'equal', 'text': 'stop within'}, {'op': 'delete', 'text': ' 1'}, {'op': 'insert', 'text': ' 0.5'}, {'op': 'equal', 'text': ' s.'}]
     """
-    a, b = _SPLIT.findall(old or ""), _SPLIT.findall(new or "")
+    a, b = _tokens(old), _tokens(new)
     runs: list[dict[str, str]] = []
-    matcher = difflib.SequenceMatcher(None, a, b, autojunk=False)
+    matcher = difflib.SequenceMatcher(None, [t for _, t in a], [t for _, t in b], autojunk=False)
     for op, i1, i2, j1, j2 in matcher.get_opcodes():
         if op == "equal":
-            runs.append({"op": "equal", "text": " ".join(a[i1:i2])})
+            runs.append(_run("equal", b[j1:j2]))
             continue
         if i2 > i1:
-            runs.append({"op": "delete", "text": " ".join(a[i1:i2])})
+            runs.append(_run("delete", a[i1:i2]))
         if j2 > j1:
-            runs.append({"op": "insert", "text": " ".join(b[j1:j2])})
+            runs.append(_run("insert", b[j1:j2]))
     return runs
 
 
@@ -53,7 +77,7 @@ def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
         if before != after:
             changes[name] = {"old": before, "new": after}
     if "text" in changes and old.text is not None and new.text is not None:
-        if " ".join(old.text.split()) == " ".join(new.text.split()):
+        if old.text.split() == new.text.split():
             del changes["text"]  # only reflowed: no word changed
         else:
             changes["text"]["words"] = word_diff(old.text, new.text)
@@ -89,16 +113,23 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     same two ends when each is the only one there; both stay in ``added``/``removed``
     so those two lists remain the plain set difference of triples.
     """
-    carried: dict[tuple[str, str, str], tuple[str, str, str]] = {}
-    for link in old.links:
-        key = (mapping.get(link.source, link.source), mapping.get(link.target, link.target), link.relation)
-        carried.setdefault(key, link.triple)
-    now = {link.triple for link in new.links}
-    removed = sorted(carried[k] for k in carried.keys() - now)
-    added = sorted(now - carried.keys())
+    # Plain set algebra on triples; only links touching a re-identified element need
+    # carrying into the new ids (matched ids are mostly unchanged).
+    renamed = {o: n for o, n in mapping.items() if o != n}
+    before = {(lk.source, lk.target, lk.relation) for lk in old.links}
+    origin: dict[tuple[str, str, str], tuple[str, str, str]] = {}
+    if renamed:
+        touched = {t for t in before if t[0] in renamed or t[1] in renamed}
+        origin = {(renamed.get(s, s), renamed.get(t, t), r): (s, t, r) for s, t, r in touched}
+        before -= touched
+        before |= origin.keys()
+    now = {(lk.source, lk.target, lk.relation) for lk in new.links}
+    lost = before - now
+    removed = sorted(origin.get(k, k) for k in lost)
+    added = sorted(now - before)
     gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
-    for key in carried.keys() - now:
-        gone[key[:2]].append(carried[key])
+    for key in lost:
+        gone[key[:2]].append(origin.get(key, key))
     came: dict[tuple[str, str], list[str]] = defaultdict(list)
     for s, t, r in added:
         came[(s, t)].append(r)
