@@ -174,6 +174,26 @@ def _ancestors(start: str, parents: dict[str, tuple[str, ...]]) -> set[str]:
     return seen
 
 
+def _heads(graph, tips: set[str]) -> list[str]:
+    """The tips that are no other tip's ancestor (newest first pass over the graph)."""
+    below: set[str] = set()
+    for sha, parents in reversed(graph):
+        if sha in tips or sha in below:
+            below.update(parents)
+    return sorted(tips - below)
+
+
+def _touched(repo, graph, tips: set[str], path: str, follow: bool) -> dict[str, str]:
+    if not follow:
+        return gitsource.path_commits(repo, sorted(tips), path)
+    # git follows renames along one line of history only, so it gets one walk per head.
+    touched: dict[str, str] = {}
+    for head in _heads(graph, tips):
+        for sha, name in gitsource.path_commits(repo, [head], path, follow=True).items():
+            touched.setdefault(sha, name)
+    return touched
+
+
 def _names(graph, touched: dict[str, str], path: str, follow: bool) -> tuple[dict[str, str], set[str]]:
     """The file's name at each commit (along first parents) and the commits at or after
     a change of it."""
@@ -215,7 +235,7 @@ def plan(repo, path: str, *, revs: str | None = None, stages: list[str] | None =
         if not tips:
             raise GitError(f"{path}: the repository has no tags; name the revisions with --revs A..B or --stages.")
     graph = gitsource.commit_graph(repo, sorted(set(tips)))
-    touched = gitsource.path_commits(repo, sorted(set(tips)), path, follow=follow)
+    touched = _touched(repo, graph, set(tips), path, follow)
     names, reached = _names(graph, touched, path, follow)
     if revs:
         parents = dict(graph)
