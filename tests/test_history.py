@@ -430,3 +430,19 @@ def test_demo_writes_the_history_page(tmp_path):
     order = [page.index(f'<td class="t">{stage}</td>') for stage in ["concept", "preliminary-design", "detailed-design", "qualification"]]
     assert order == sorted(order)
     assert not cache_folder().exists()  # the demo leaves the user's cache alone
+
+
+def test_the_readme_history_commands_run(tmp_path, monkeypatch):
+    import re
+    import shlex
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text("utf-8")
+    commands = [line for block in re.findall(r"```sh\n(.*?)```", readme, flags=re.S)
+                for line in block.splitlines() if line.startswith("tracecheck history")]
+    assert len(commands) == 2
+    repo = _stage_repo(tmp_path)
+    monkeypatch.chdir(repo.root)
+    for command in commands:
+        result = run(*shlex.split(command)[1:])
+        assert result.exit_code == 0, (command, result.output)
+    assert (repo.root / "history.html").read_text().startswith("<!DOCTYPE html>")
