@@ -354,10 +354,16 @@ def test_a_corrupt_or_foreign_cache_entry_is_ignored(tmp_path, monkeypatch):
     entries[1].write_text('{"format": "history-cache/1", "value": {"status": "ok", "metrics": {"elements": "many"}}}')
     entries[2].write_text('{"format": "history-cache/1", "value": {"added": -1.5}}')
     entries[3].write_text("[]")
+    entries[4].write_text('{"format": "history-cache/1", "value": [1, 2]}')
+    entries[5].write_text('{"format": "history-cache/1", "value": {"status": "ok", "metrics": {"elements": 1, '
+                          '"links": 1, "by_kind": {}, "findings": {}, "severities": {}, "coverage": {"x": "50"}}}}')
     result = run("history", "--format", "json", MODEL)
     assert result.exit_code == 0 and result.stdout == clean
-    for entry in entries[:4]:  # rewritten with good content
+    for entry in entries[:6]:  # rewritten with good content
         assert json.loads(entry.read_text())["format"] == "history-cache/1"
+    for entry in entries:  # every entry of the right format but a foreign shape
+        entry.write_text('{"format": "history-cache/1", "value": [1, 2]}')
+    assert run("history", "--format", "json", MODEL).stdout == clean
 
 
 def test_an_unwritable_cache_folder_is_not_fatal(tmp_path, monkeypatch):

@@ -59,7 +59,11 @@ class Cache:
             value = document["value"] if document.get("format") == FORMAT else None
         except (OSError, ValueError, TypeError, AttributeError, KeyError):
             value = None
-        if value is None or not valid(value):
+        try:
+            usable = value is not None and valid(value)
+        except Exception:  # any shape the validator did not foresee: still only a miss
+            usable = False
+        if not usable:
             self.misses += 1
             return None
         self.hits += 1
