@@ -12,9 +12,9 @@ from tracecheck.report.svgchart import Series, bar_chart, line_chart
 __all__ = ["history_html"]
 
 _CSS = """
-body{font-family:system-ui,Helvetica,Arial,sans-serif;margin:2em;color:#1a1a1a;max-width:64em}
+body{font-family:system-ui,Helvetica,Arial,sans-serif;margin:2em;color:#1a1a1a;max-width:72em}
 h1{font-size:1.5em}h2{font-size:1.15em;margin-top:1.8em}
-table{border-collapse:collapse;margin:.5em 0 1.5em}th,td{border:1px solid #bbb;padding:.25em .6em;text-align:left}
+table{border-collapse:collapse;margin:.5em 0 1.5em;font-size:.9em}th,td{border:1px solid #bbb;padding:.25em .6em;text-align:left}
 th{background:#f1f1f1}td.t{white-space:nowrap}td.n{text-align:right;font-variant-numeric:tabular-nums}code{font-size:.92em}
 .caution{border-left:4px solid #555;padding:.5em 1em;background:#f6f6f6}
 .missing,.malformed{font-style:italic;background:#f3f3f3}

@@ -96,7 +96,7 @@ class _Frame:
     left: int = 64
     right: int = 24
     top: int = 40
-    bottom: int = 96
+    bottom: int = 40
 
     @property
     def plot_w(self) -> float:
@@ -111,6 +111,37 @@ class _Frame:
 
     def y(self, value: float, top: float) -> float:
         return self.top + self.plot_h * (1 - value / top)
+
+
+_LEFT, _RIGHT = 64, 24
+
+
+def _slanted(labels: list[str], width: int) -> bool:
+    step = (width - _LEFT - _RIGHT) / max(len(labels), 1)
+    return len(labels) > 6 or max((len(s) for s in labels), default=0) * 7 > step
+
+
+def _legend_rows(width: int, names: list[str]) -> list[list[tuple[int, float]]]:
+    """Legend entries (index, x) in rows that fit the chart's width."""
+    rows: list[list[tuple[int, float]]] = [[]]
+    x = float(_LEFT)
+    for index, name in enumerate(names):
+        size = 56 + 7.5 * len(name)
+        if rows[-1] and x + size > width - _RIGHT:
+            rows.append([])
+            x = float(_LEFT)
+        rows[-1].append((index, x))
+        x += size
+    return rows
+
+
+def _frame(width: int, plot_height: int, labels: list[str], names: list[str]) -> _Frame:
+    """Room above the plot for the title and legend, below it for the category labels
+    (more when they are slanted)."""
+    top = 40 + 20 * len(_legend_rows(width, names))
+    longest = max((len(s) for s in labels), default=0)
+    bottom = 52 + (int(longest * 3.2) if _slanted(labels, width) else 0)
+    return _Frame(width, top + plot_height + bottom, _LEFT, _RIGHT, top, bottom)
 
 
 def _axes(frame: _Frame, labels: list[str], ticks: list[float], y_label: str, title: str,
@@ -133,7 +164,7 @@ def _axes(frame: _Frame, labels: list[str], ticks: list[float], y_label: str, ti
     bottom = frame.top + frame.plot_h
     parts.append(f'<path d="M{frame.left} {frame.top}V{_f(bottom)}H{_f(frame.left + frame.plot_w)}" '
                  'fill="none" stroke="#1a1a1a" stroke-width="1.2"/>')
-    slant = n > 6 or max((len(s) for s in labels), default=0) * 7 > step
+    slant = _slanted(labels, frame.width)
     for index, text in enumerate(labels):
         x = frame.x(index, n)
         parts.append(f'<line x1="{_f(x)}" y1="{_f(bottom)}" x2="{_f(x)}" y2="{_f(bottom + 5)}" stroke="#1a1a1a"/>')
@@ -143,6 +174,8 @@ def _axes(frame: _Frame, labels: list[str], ticks: list[float], y_label: str, ti
         else:
             parts.append(f'<text x="{_f(x)}" y="{_f(bottom + 18)}" font-size="11" text-anchor="middle" {_FONT}>'
                          f"{escape(text)}</text>")
+    parts.append(f'<text x="{_f(frame.left + frame.plot_w / 2)}" y="{frame.height - 10}" font-size="12" '
+                 f'text-anchor="middle" {_FONT}>revision (oldest first)</text>')
     mid = frame.top + frame.plot_h / 2
     parts.append(f'<text transform="translate(16 {_f(mid)}) rotate(-90)" font-size="12" text-anchor="middle" '
                  f"{_FONT}>{escape(y_label)}</text>")
@@ -150,22 +183,14 @@ def _axes(frame: _Frame, labels: list[str], ticks: list[float], y_label: str, ti
 
 
 def _legend(frame: _Frame, entries: list[tuple[str, str]]) -> list[str]:
-    """``entries``: (SVG swatch drawn around 0,0; name), laid out in rows under the plot."""
-    parts, x, y = [], frame.left, frame.height - 16
-    rows: list[list[tuple[str, str, float]]] = [[]]
-    for swatch, name in entries:
-        width = 56 + 7.5 * len(name)
-        if rows[-1] and x + width > frame.width - frame.right:
-            rows.append([])
-            x = frame.left
-        rows[-1].append((swatch, name, x))
-        x += width
-    y -= 18 * (len(rows) - 1)
-    for row in rows:
-        for swatch, name, x0 in row:
-            parts.append(f'<g transform="translate({_f(x0)} {_f(y)})">{swatch}'
+    """``entries``: (SVG swatch drawn around 0,0; name), in rows between title and plot."""
+    parts = []
+    for number, row in enumerate(_legend_rows(frame.width, [name for _, name in entries])):
+        y = 44 + 20 * number
+        for index, x in row:
+            swatch, name = entries[index]
+            parts.append(f'<g transform="translate({_f(x)} {_f(y)})">{swatch}'
                          f'<text x="40" y="4" font-size="12" {_FONT}>{escape(name)}</text></g>')
-        y += 18
     return parts
 
 
@@ -177,11 +202,11 @@ def _svg(frame: _Frame, title: str, body: list[str], defs: str = "") -> str:
 
 def line_chart(title: str, labels: list[str], series: list[Series], *, y_label: str,
                y_top: float | None = None, notes: dict[int, str] | None = None,
-               width: int = 920, height: int = 380) -> str:
+               width: int = 920, height: int = 260) -> str:
     """Lines over categories; ``y_top`` fixes the axis (100 for percentages)."""
     values = [v for s in series for v in s.values if v is not None]
     ticks = nice_ticks(y_top if y_top is not None else max(values, default=0))
-    frame = _Frame(width, height + 18 * (len(series) // 4))
+    frame = _frame(width, height, labels, [item.name for item in series])
     body = _axes(frame, labels, ticks, y_label, title, notes or {})
     n = len(labels)
     legend = []
@@ -236,13 +261,13 @@ def _bar_fill(index: int, prefix: str) -> tuple[str, str]:
 
 
 def bar_chart(title: str, labels: list[str], series: list[Series], *, y_label: str, ident: str,
-              notes: dict[int, str] | None = None, width: int = 920, height: int = 380) -> str:
+              notes: dict[int, str] | None = None, width: int = 920, height: int = 260) -> str:
     """Stacked bars over categories, one segment per series; ``ident`` keeps the
     pattern ids of several charts on one page apart."""
     n = len(labels)
     totals = [sum(s.values[i] or 0 for s in series) for i in range(n)]
     ticks = nice_ticks(max(totals, default=0))
-    frame = _Frame(width, height)
+    frame = _frame(width, height, labels, [item.name for item in series])
     body = _axes(frame, labels, ticks, y_label, title, notes or {})
     bar_w = min(48.0, frame.plot_w / max(n, 1) * 0.55)
     for i in range(n):
