@@ -280,6 +280,8 @@ def test_stages_are_walked_in_commit_order(tmp_path, monkeypatch):
     (["model/other.json"], "no tag of the repository has this file"),
     (["--stages", "concept", "model/other.json"], "does not exist at any of the 1 revisions"),
     (["--input-format", "nonsense", MODEL], "unknown format 'nonsense'"),
+    (["concept:" + MODEL], "not a model spec"),
+    (["-"], "not a model spec"),
 ])
 def test_bad_requests_exit_2_with_one_clear_message(tmp_path, monkeypatch, args, says):
     repo = Repo(tmp_path / "repo")
@@ -390,6 +392,8 @@ def test_csv_markdown_and_text_carry_the_same_rows(tmp_path, monkeypatch):
         assert all(float(line[f"coverage:{d}"]) == p for d, p in row["coverage"].items() if p is not None)
     markdown = run("history", "--format", "markdown", MODEL).stdout
     assert sum(1 for line in markdown.splitlines() if line.startswith("| `")) == 4
+    quiet = run("history", "--quiet", MODEL).stdout
+    assert quiet == "4 revisions of model/thread.json: 4 ok, 0 missing, 0 malformed.\n"
     text = run("history", MODEL)
     assert text.exit_code == 0 and text.stderr == ""  # no progress bar when not interactive
     assert "4 revisions of model/thread.json: 4 ok" in text.stdout
@@ -452,3 +456,31 @@ def test_the_readme_history_commands_run(tmp_path, monkeypatch):
         result = run(*shlex.split(command)[1:])
         assert result.exit_code == 0, (command, result.output)
     assert (repo.root / "history.html").read_text().startswith("<!DOCTYPE html>")
+
+
+def test_the_progress_bar_opens_only_on_walks_that_take_a_while(monkeypatch):
+    from contextlib import ExitStack, contextmanager
+
+    from tracecheck.commands import history as command
+
+    opened, updates, clock = [], [], [100.0]
+
+    @contextmanager
+    def fake_progress(description, *, enabled):
+        opened.append(description)
+        yield lambda fraction, label: updates.append((fraction, label))
+
+    monkeypatch.setattr(command, "progress", fake_progress)
+    monkeypatch.setattr(command.time, "monotonic", lambda: clock[0])
+    with ExitStack() as stack:
+        quick = command._LateProgress(True, stack)
+        quick(0.0, "concept")
+        quick(1.0, "done")  # finished within the second: never shown
+        assert opened == []
+        slow = command._LateProgress(True, stack)
+        clock[0] += 2.5
+        slow(0.5, "detailed-design")
+        assert opened == ["history"] and updates == [(0.5, "detailed-design")]
+        off = command._LateProgress(False, stack)
+        off(0.5, "x")
+        assert len(opened) == 1

@@ -10,12 +10,13 @@ from pathlib import Path
 from tracecheck import gitsource
 from tracecheck.commands.common import Streams, emit, resolve_config
 from tracecheck.config import Config
-from tracecheck.errors import GitError
+from tracecheck.errors import GitError, UsageError
 from tracecheck.formats import get_format
 from tracecheck.history import HistoryResult, plan, walk
 from tracecheck.history_cache import Cache, cache_folder
 from tracecheck.report import RenderOptions, render
 from tracecheck.report.progress import progress, progress_enabled
+from tracecheck.sources import split_rev_spec
 
 __all__ = ["run", "history"]
 
@@ -71,6 +72,9 @@ def history(
 ) -> HistoryResult:
     """The history of ``path`` (relative to ``cwd``) in the repository around it."""
     cwd = cwd or Path.cwd()
+    if path == "-" or split_rev_spec(path) is not None:
+        raise UsageError(f"{path}: history takes the path of a model file in a git repository, not a model "
+                         "spec; choose the revisions with --revs A..B or --stages.")
     if input_format:
         get_format(input_format)  # an unknown format is a usage error, not a malformed row
     anchor = _anchor(cwd, path)
