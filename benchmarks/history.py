@@ -32,24 +32,38 @@ from scale import generate  # noqa: E402  (the generator the scale benchmark use
 
 MODEL = "model/thread.json"
 
-BASELINE = """
-import json, resource, sys, time
+PEAK = """
+def peak_mib():
+    # VmHWM belongs to this process image; ru_maxrss would carry over the parent's peak
+    # across fork and exec on Linux.
+    try:
+        for line in open('/proc/self/status'):
+            if line.startswith('VmHWM:'):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    import resource
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+"""
+
+BASELINE = PEAK + """
+import json, sys, time
 import git
 t = time.perf_counter()
 repo = git.Repo(sys.argv[1])
 for tag in sorted(repo.tags, key=lambda t: t.name):
     json.loads((tag.commit.tree / sys.argv[2]).data_stream.read())
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+print(time.perf_counter() - t, peak_mib())
 """
 
-HISTORY = """
-import io, os, resource, sys, time
+HISTORY = PEAK + """
+import io, os, sys, time
 os.chdir(sys.argv[1])
 from tracecheck.commands import history
 from tracecheck.commands.common import Streams
 t = time.perf_counter()
 history.run(sys.argv[2], fmt='json', output=sys.argv[3], streams=Streams(io.StringIO(), sys.stderr))
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+print(time.perf_counter() - t, peak_mib())
 """
 
 
@@ -99,8 +113,8 @@ def measure(script: str, cache: Path, *args: str) -> tuple[float, float]:
     env.pop("CI", None)
     out = subprocess.run([sys.executable, "-c", script, *args], check=True, capture_output=True, text=True,
                          env=env)
-    seconds, rss_kib = out.stdout.split()
-    return float(seconds), float(rss_kib) / 1024
+    seconds, mib = out.stdout.split()
+    return float(seconds), float(mib)
 
 
 def main() -> None:
