@@ -357,6 +357,41 @@ def convert(ctx: click.Context, model: str, output: str, to: str | None, input_f
                        config_option=config_option, quiet=quiet)
 
 
+@cli.command()
+@click.argument("path")
+@_common(["text", "json", "csv", "markdown", "html"])
+@click.option("--revs", default=None, metavar="A..B",
+              help="Revision A, every commit after it up to B that changes PATH, and B.")
+@click.option("--stages", default=None, metavar="NAMES",
+              help="Comma-separated revisions to use, e.g. concept,preliminary-design (default: every tag).")
+@click.option("--follow", is_flag=True, help="Follow PATH across renames.")
+@click.option("--no-cache", is_flag=True, help="Neither read nor write the on-disk cache of per-revision results.")
+@click.option("--input-format", default=None, help="Read every revision as this format instead of detecting it.")
+@click.pass_context
+def history(ctx: click.Context, path: str, fmt: str, output: str | None, config_option: str | None, quiet: bool,
+            no_color: bool, debug: bool, revs: str | None, stages: str | None, follow: bool, no_cache: bool,
+            input_format: str | None) -> int:
+    """Element, link, finding, coverage and churn counts of PATH across git revisions.
+
+    By default every tag whose commit has PATH in its history, oldest first. A revision
+    where PATH is missing or malformed is shown as such and does not stop the walk.
+    """
+    from tracecheck.commands import history as command
+
+    return command.run(
+        path,
+        revs=revs,
+        stages=stages,
+        follow=follow,
+        fmt=fmt,
+        output=output,
+        config_option=config_option,
+        input_format=input_format,
+        use_cache=not no_cache,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 

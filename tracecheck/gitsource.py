@@ -31,6 +31,13 @@ __all__ = [
     "user_name",
     "default_branch",
     "repo_relative",
+    "repo_path",
+    "commit_id",
+    "commit_graph",
+    "path_commits",
+    "tags_by_commit",
+    "blob_at",
+    "read_object",
 ]
 
 
@@ -201,6 +208,91 @@ def default_branch(cwd: Path) -> str | None:
 def repo_relative(path: str, cwd: Path) -> str:
     """``path`` (relative to ``cwd``) as a path from the repository root, POSIX style."""
     return _tree_path(open_repo(cwd), path, cwd)
+
+
+# --- reading a history through one repository object (history command) -------------
+# These take the repository object from :func:`open_repo`, so a whole walk shares one
+# gitpython object database (a persistent ``git cat-file`` reader), and listing the
+# history costs a fixed number of git processes however many revisions it has.
+
+
+def repo_path(repo, path: str, cwd: Path) -> str:
+    """``path`` (relative to ``cwd``) as a path inside the repository's tree."""
+    return _tree_path(repo, path, cwd)
+
+
+def commit_id(repo, rev: str) -> str:
+    """Full commit id of ``rev`` in ``repo``; an unknown name is a :class:`GitError`."""
+    try:
+        return repo.commit(rev).hexsha
+    except Exception:  # gitpython raises several unrelated types for a bad name
+        raise GitError(f"unknown git revision {rev!r} in {repo.working_tree_dir}.") from None
+
+
+def commit_graph(repo, tips: list[str]) -> list[tuple[str, tuple[str, ...]]]:
+    """Every commit reachable from ``tips`` with its parents, oldest first.
+
+    Topological order (parents before children), so it holds even when commit dates
+    tie or go backwards. One ``git rev-list`` process.
+    """
+    if not tips:
+        return []
+    with _converted("listing the commits"):
+        out = repo.git.rev_list("--topo-order", "--reverse", "--parents", *tips, "--")
+    graph = []
+    for line in out.splitlines():
+        sha, *parents = line.split()
+        graph.append((sha, tuple(parents)))
+    return graph
+
+
+def path_commits(repo, tips: list[str], path: str, *, follow: bool = False) -> dict[str, str]:
+    """Commits reachable from ``tips`` that change ``path``, each with the name the file
+    has in that commit (with ``follow``, older names across renames). One ``git log``."""
+    if not tips:
+        return {}
+    args = ["-z", "--format=%H", "--name-only", *(["--follow"] if follow else []), *tips, "--", path]
+    with _converted(f"history of {path}"):
+        out = repo.git.log(*args)
+    found: dict[str, str] = {}
+    current = None
+    for token in out.split("\0"):
+        if token.startswith("\n"):  # a file name follows its commit line after a newline
+            if current is not None and current not in found:
+                found[current] = token[1:]
+        elif token.strip():
+            current = token.strip()
+    return found
+
+
+def tags_by_commit(repo) -> dict[str, list[str]]:
+    """Tag names per commit id (annotated tags peeled), names sorted."""
+    tags: dict[str, list[str]] = {}
+    with _converted("listing the tags"):
+        for ref in repo.tags:
+            try:
+                sha = ref.commit.hexsha
+            except ValueError:  # a tag of a tree or blob names no revision
+                continue
+            tags.setdefault(sha, []).append(ref.name)
+    return {sha: sorted(names) for sha, names in tags.items()}
+
+
+def blob_at(repo, commit: str, path: str) -> str | None:
+    """Object id of the file ``path`` in ``commit``; ``None`` when absent or a folder."""
+    with _converted(f"{commit[:12]}:{path}"):
+        tree = repo.commit(commit).tree
+        try:
+            entry = tree / path
+        except KeyError:
+            return None
+    return entry.hexsha if entry.type == "blob" else None
+
+
+def read_object(repo, object_id: str) -> bytes:
+    """The content of one blob, read through the repository's object database."""
+    with _converted(f"reading object {object_id[:12]}"):
+        return repo.odb.stream(bytes.fromhex(object_id)).read()
 
 
 # --- writing, used only by the demo and tests to build repositories -----------------

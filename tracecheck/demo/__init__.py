@@ -162,3 +162,7 @@ _EXTRA_STEPS.append(formats_step)
 from tracecheck.diff.demo_step import diff_step  # noqa: E402
 
 _EXTRA_STEPS.append(diff_step)
+
+from tracecheck.demo.history import history_step  # noqa: E402
+
+_EXTRA_STEPS.append(history_step)
