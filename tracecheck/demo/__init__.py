@@ -142,9 +142,13 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
 # a function (demo, out, options) -> list of report file names it wrote.
 _EXTRA_STEPS: list = []
 
+# The order is the story a reviewer follows: what changed since the last stage, how well
+# the latest stage is covered, whether the proposed change may merge, how the thread
+# evolved, and the same stage in the open interchange formats.
 from tracecheck.commands.coverage import demo_step as _coverage_step  # noqa: E402
-
-_EXTRA_STEPS.append(_coverage_step)
+from tracecheck.demo.formats_step import formats_step  # noqa: E402
+from tracecheck.demo.history import history_step  # noqa: E402
+from tracecheck.diff.demo_step import diff_step  # noqa: E402
 
 
 def _gate_step(demo, out, options) -> list[str]:
@@ -153,16 +157,4 @@ def _gate_step(demo, out, options) -> list[str]:
     return gate_step(demo, out, options)
 
 
-_EXTRA_STEPS.append(_gate_step)
-
-from tracecheck.demo.formats_step import formats_step  # noqa: E402  (after _EXTRA_STEPS exists)
-
-_EXTRA_STEPS.append(formats_step)
-
-from tracecheck.diff.demo_step import diff_step  # noqa: E402
-
-_EXTRA_STEPS.append(diff_step)
-
-from tracecheck.demo.history import history_step  # noqa: E402
-
-_EXTRA_STEPS.append(history_step)
+_EXTRA_STEPS += [diff_step, _coverage_step, _gate_step, history_step, formats_step]
