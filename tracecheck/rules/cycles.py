@@ -1,10 +1,15 @@
-"""The ``cycle`` rule: hierarchies that loop back on themselves."""
+"""The ``cycle`` rule: hierarchies that loop back on themselves.
+
+Components are labelled on integer arrays (``context.arrays``) by scipy's compiled
+strongly connected components; networkx sees only the few edges inside a cyclic
+component, to pick one example cycle, and is imported only when there is one.
+"""
 
 from __future__ import annotations
 
 from collections.abc import Iterable, Iterator
 
-import networkx as nx
+import numpy as np
 
 from tracecheck.rules import Hit, rule
 from tracecheck.rules.engine import RuleContext
@@ -38,10 +43,16 @@ def cyclic_components(edges: Iterable[tuple[str, str]]) -> list[tuple[list[str],
     found = []
     for component, inner in _components(pairs):
         members = sorted(component)
-        sub = nx.DiGraph(inner)
-        walk = [u for u, _ in nx.find_cycle(sub, source=members[0])]
-        found.append((members, walk + [walk[0]]))
+        found.append((members, _example(inner, members[0])))
     return sorted(found)
+
+
+def _example(inner: list[tuple[str, str]], start: str) -> list[str]:
+    """One closed walk from ``start`` over ``inner`` (edges in first-seen order)."""
+    import networkx as nx
+
+    walk = [u for u, _ in nx.find_cycle(nx.DiGraph(inner), source=start)]
+    return walk + [walk[0]]
 
 
 def _components(pairs: list[tuple[str, str]]):
@@ -52,7 +63,6 @@ def _components(pairs: list[tuple[str, str]]):
     edges inside a component, to pick an example cycle. On a 100k-element thread this
     takes about a tenth of the time of building the whole networkx graph.
     """
-    import numpy as np
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
 
@@ -88,31 +98,69 @@ def _components(pairs: list[tuple[str, str]]):
     template="{relation} cycle among {count} elements ({members}); for example {example}",
 )
 def cycle(context: RuleContext) -> Iterator[Hit]:
-    ids = context.ids
-    by_relation: dict[str, list[tuple[str, str]]] = {
-        name: [] for name in context.metamodel.acyclic_relations
-    }
-    for source, target, relation in context.distinct_links:
-        if relation in by_relation and source in ids and target in ids:
-            by_relation[relation].append((source, target))
-    for relation, edges in sorted(by_relation.items()):
-        for members, walk in cyclic_components(edges):
-            link = context.distinct_links[(walk[0], walk[1], relation)][0]
-            yield _hit(relation, members, walk, location=link.location)
+    arrays = context.arrays
+    n = arrays.n
+    firsts = arrays.triple_first
+    src, tgt, rel = arrays.src[firsts], arrays.tgt[firsts], arrays.rel[firsts]
+    usable = (src < n) & (tgt < n) & (src != tgt)
+    columns = context.model.columns
+    for relation in sorted(context.metamodel.acyclic_relations):
+        code = arrays.rel_code.get(relation)
+        if code is None:
+            continue
+        chosen = np.flatnonzero(usable & (rel == code))
+        found = _array_components(arrays, src[chosen], tgt[chosen])
+        if not found:
+            continue
+        # The first link of each (source, target) pair: where the example walk starts.
+        pairs = zip(src[chosen].tolist(), tgt[chosen].tolist(), strict=True)
+        first_link = dict(zip(pairs, firsts[chosen].tolist(), strict=True))
+        for members, walk in found:
+            pair = (arrays.position[walk[0]], arrays.position[walk[1]])
+            yield _hit(relation, members, walk, location=columns.link_location(first_link[pair]))
     yield from _parent_cycles(context)
 
 
+def _array_components(arrays, sources: np.ndarray, targets: np.ndarray) -> list[tuple[list[str], list[str]]]:
+    """Like :func:`cyclic_components`, for edges given as element codes (first-seen order)."""
+    if len(sources) == 0:
+        return []
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    size = arrays.n
+    matrix = coo_matrix((np.ones(len(sources), dtype=np.int8), (sources, targets)), shape=(size, size)).tocsr()
+    _, labels = connected_components(matrix, directed=True, connection="strong")
+    counts = np.bincount(labels)
+    source_labels, target_labels = labels[sources], labels[targets]
+    inside = (source_labels == target_labels) & (counts[source_labels] > 1)
+    if not inside.any():
+        return []
+    names = arrays.names
+    groups: dict[int, tuple[set[str], list[tuple[str, str]]]] = {}
+    for edge in np.flatnonzero(inside).tolist():
+        u, v = names[sources[edge]], names[targets[edge]]
+        group = groups.setdefault(int(source_labels[edge]), (set(), []))
+        group[0].update((u, v))
+        group[1].append((u, v))
+    found = []
+    for component, inner in groups.values():
+        members = sorted(component)
+        found.append((members, _example(inner, members[0])))
+    return sorted(found)
+
+
 def _parent_cycles(context: RuleContext) -> Iterator[Hit]:
-    ids = context.ids
-    edges = []
-    for element in context.model.by_id.values():
-        if element.parent is None or element.parent not in ids:
-            continue
-        if element.parent == element.id:  # containment of itself: a cycle of one
-            yield _hit(PARENT, [element.id], [element.id, element.id])
-        else:
-            edges.append((element.id, element.parent))
-    for members, walk in cyclic_components(edges):
+    arrays = context.arrays
+    n = arrays.n
+    parent = arrays.parent
+    has = (parent >= 0) & (parent < n)
+    codes = np.arange(n, dtype=np.int64)
+    for code in np.flatnonzero(has & (parent == codes)).tolist():  # containment of itself
+        element_id = arrays.names[code]
+        yield _hit(PARENT, [element_id], [element_id, element_id])
+    edges = np.flatnonzero(has & (parent != codes))
+    for members, walk in _array_components(arrays, edges, parent[edges]):
         yield _hit(PARENT, members, walk)
 
 
