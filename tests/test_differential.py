@@ -11,7 +11,10 @@ parents, unknown kinds and relations, attributes for filters and required attrib
 from __future__ import annotations
 
 import json
+from unittest import mock
 
+import networkx as nx
+import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -20,6 +23,7 @@ from tracecheck.config import Config, config_from_mapping
 from tracecheck.coverage import evaluate
 from tracecheck.formats.thread_json import parse
 from tracecheck.model import Element, Link, Location, Model
+from tracecheck.rules import cycles
 from tracecheck.rules.engine import run_rules
 
 NAMES = [f"N{i}" for i in range(7)]
@@ -83,6 +87,32 @@ def _compare(model, config):
 @given(elements, links, st.sampled_from(range(len(CONFIGS))))
 def test_fast_rules_equal_the_reference_on_object_models(elements, links, which):
     _compare(Model(elements, links, origin="m.json"), CONFIGS[which])
+
+
+@settings(max_examples=100, deadline=None)
+@given(elements, links, st.sampled_from(range(len(CONFIGS))))
+def test_cycle_labelling_by_scipy_and_without_peeling_equals_the_reference(elements, links, which):
+    # The large-model branches: scipy's labelling, and peeling that gives up at once.
+    with mock.patch.object(cycles, "SCIPY_FROM", 0), mock.patch.object(cycles, "MAX_ROUNDS", 0):
+        _compare(Model(elements, links, origin="m.json"), CONFIGS[which])
+
+
+edges = st.lists(st.tuples(st.integers(0, 7), st.integers(0, 7)).filter(lambda e: e[0] != e[1]), max_size=20)
+
+
+@settings(max_examples=200, deadline=None)
+@given(edges)
+def test_peeling_keeps_exactly_what_can_lie_on_a_cycle(pairs):
+    # Oracle: networkx.simple_cycles. Peeling must keep every edge of every cycle, and
+    # leave nothing when networkx finds no cycle (networkx.is_directed_acyclic_graph).
+    graph = nx.DiGraph(pairs)
+    sources = np.array([u for u, _ in pairs], dtype=np.int64)
+    targets = np.array([v for _, v in pairs], dtype=np.int64)
+    rest = cycles.peel(8, sources, targets, 64)
+    kept = {pairs[i] for i in rest.tolist()}
+    on_cycles = {(c[i], c[(i + 1) % len(c)]) for c in nx.simple_cycles(graph) for i in range(len(c))}
+    assert on_cycles <= kept
+    assert (not kept) == nx.is_directed_acyclic_graph(graph)
 
 
 @settings(max_examples=150, deadline=None)

@@ -1,0 +1,114 @@
+"""The thread JSON reader's fast path: byte-scanned lines, column checks, lazy objects."""
+
+from __future__ import annotations
+
+import json
+
+import jsonschema
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from tracecheck.formats import thread_json
+from tracecheck.formats.json_lines import item_lines
+from tracecheck.formats.thread_json import fast_valid, parse, schema
+from tracecheck.model import Location
+
+# Strings that trouble a byte scanner: quotes, runs of backslashes, brackets, braces,
+# commas, escaped newlines, non-ASCII (multi-byte UTF-8) text.
+tricky = st.text(alphabet=st.sampled_from(list('ab"\\[]{},:\n\t é漢😀')), max_size=8)
+values = st.recursive(
+    st.one_of(tricky, st.integers(), st.booleans(), st.none()),
+    lambda inner: st.one_of(st.lists(inner, max_size=3), st.dictionaries(tricky, inner, max_size=3)),
+    max_leaves=6,
+)
+items = st.lists(st.dictionaries(tricky, values, max_size=4), max_size=6)
+
+
+def _exact_lines(text: str) -> dict[str, list[int]]:
+    # Oracle: Python's own JSON scanner run item by item (the reader's slow path,
+    # json.JSONDecoder.scan_once), counting newlines before each item's first character.
+    positions = thread_json._Positions()
+    thread_json._decode_document(text, positions)
+    return {key: thread_json._lines(text, starts) for key, starts in positions.items.items()}
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    items,
+    items,
+    st.dictionaries(tricky, tricky, max_size=2),
+    st.sampled_from([None, 0, 1, 3]),
+    st.booleans(),
+    st.sampled_from([1, 2, 3, 7, 64, 1 << 20]),
+)
+def test_byte_scan_lines_equal_the_item_by_item_scanner(elements, links, model, indent, ascii_only, chunk):
+    document = {"model": model, "elements": elements, "format": "x", "links": links}
+    text = json.dumps(document, indent=indent, ensure_ascii=ascii_only)
+    data = text.encode("utf-8")
+    found = item_lines(data, {"elements": len(elements), "links": len(links)}, chunk=chunk)
+    assert found == _exact_lines(text)
+
+
+def test_byte_scan_declines_what_it_cannot_vouch_for():
+    escaped_key = b'{"\\u0065lements": [{"a": 1}], "links": []}'
+    assert item_lines(escaped_key, {"elements": 1, "links": 0}) is None
+    twice = b'{"elements": [{"a": 1}], "elements": [{"a": 1}], "links": []}'
+    assert item_lines(twice, {"elements": 1, "links": 0}) is None
+    wrong_count = b'{"elements": [{"a": 1}], "links": []}'
+    assert item_lines(wrong_count, {"elements": 2, "links": 0}) is None
+
+
+def test_escaped_key_still_gets_exact_lines_through_the_fallback():
+    data = b'{"format": "tracecheck-thread/1",\n"\\u0065lements": [\n\n{"id": "A", "kind": "test"}],\n"links": []}'
+    model = parse(data, "m.json")
+    assert model.location_of("A") == Location("m.json", 4)
+    assert model.elements[0].location == Location("m.json", 4)
+
+
+def test_objects_are_built_only_when_asked_for():
+    data = json.dumps({"format": "tracecheck-thread/1",
+                       "elements": [{"id": "A", "kind": "test", "attributes": {"status": "draft"}}],
+                       "links": [{"source": "A", "target": "B", "relation": "verifies"}]}).encode()
+    model = parse(data, "m.json")
+    assert model._elements is None and model._links is None
+    assert (model.element_count, model.link_count, model.kinds, model.kind_of("A")) == (1, 1, {"test": 1}, "test")
+    assert model._elements is None  # counts, kinds and kind_of come from the columns
+    assert model.elements[0].attributes == {"status": "draft"}
+    assert model.links[0].triple == ("A", "B", "verifies")
+
+
+# --- the column checks accept exactly what the published schema accepts ----------------
+# Oracle: the JSON Schema 2020-12 validator of the jsonschema package over
+# schemas/thread.schema.json. Values sit near every limit of the schema (empty strings,
+# id length 1000/1001, scalar length 100000/100001) and every JSON type appears where a
+# string is expected.
+
+near_limits = st.sampled_from(["", "x", "x" * 1000, "x" * 1001, "y" * 10000, "y" * 10001])
+odd_values = st.one_of(near_limits, st.integers(), st.floats(allow_nan=False, allow_infinity=False),
+                       st.booleans(), st.none(), st.just([]), st.just({}))
+attribute_values = st.one_of(odd_values, st.sampled_from(["z" * 100000, "z" * 100001]),
+                             st.lists(st.one_of(odd_values, st.just(["nested"])), max_size=2))
+attributes = st.one_of(st.dictionaries(near_limits, attribute_values, max_size=2), odd_values)
+
+
+def _thing(required, optional):
+    return st.fixed_dictionaries(
+        {k: st.one_of(st.just("ID-1"), odd_values) for k in required},
+        optional={**{k: odd_values for k in optional}, "attributes": attributes, "extra": st.just(1)},
+    )
+
+
+element_items = st.one_of(_thing(["id", "kind"], ["name", "text", "parent"]), _thing(["id"], []), odd_values)
+link_items = st.one_of(_thing(["source", "target", "relation"], ["id"]), _thing(["source"], []), odd_values)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(element_items, max_size=3), st.lists(link_items, max_size=3),
+       st.one_of(st.none(), st.dictionaries(near_limits, attribute_values, max_size=2)))
+def test_column_checks_agree_with_the_published_schema(elements, links, model):
+    document = {"format": "tracecheck-thread/1", "elements": elements, "links": links}
+    if model is not None:
+        document["model"] = model
+    document = json.loads(json.dumps(document))
+    expected = jsonschema.Draft202012Validator(schema()).is_valid(document)
+    assert fast_valid(document) == expected
