@@ -112,3 +112,13 @@ def test_column_checks_agree_with_the_published_schema(elements, links, model):
     document = json.loads(json.dumps(document))
     expected = jsonschema.Draft202012Validator(schema()).is_valid(document)
     assert fast_valid(document) == expected
+
+
+def test_a_later_copy_of_an_id_is_checked_too():
+    # Oracle: jsonschema over the published schema; the fast path codes only the first
+    # element of each id, so the copies' kinds and parents need their own check.
+    for bad in ({"kind": ""}, {"kind": 5}, {"kind": "test", "parent": ""}, {"kind": "test", "parent": 7}):
+        document = {"format": "tracecheck-thread/1", "links": [],
+                    "elements": [{"id": "A", "kind": "test"}, {"id": "A", **bad}]}
+        assert not jsonschema.Draft202012Validator(schema()).is_valid(document)
+        assert fast_valid(document) is False

@@ -48,12 +48,18 @@ class ModelArrays:
     """
 
     def __init__(self, columns: Columns) -> None:
+        # Raises TypeError if a column holds an unhashable value (a reader's validation
+        # relies on that).
         self.columns = columns
         ids = columns.element_ids
-        distinct = dict.fromkeys(ids)
-        self.n = n = len(distinct)
-        self.names: list[str] = list(distinct)
-        self.position: dict[str, int] = dict(zip(self.names, range(n), strict=True))
+        position = dict(zip(ids, range(len(ids)), strict=True))
+        if len(position) == len(ids):  # the usual case: ids are unique, one dict suffices
+            self.names: list[str] = list(ids)
+        else:
+            self.names = list(dict.fromkeys(ids))
+            position = dict(zip(self.names, range(len(self.names)), strict=True))
+        self.position: dict[str, int] = position
+        self.n = n = len(position)
         self._ghosts: dict[str, int] = {}
         if n == len(ids):
             self.first = np.arange(n, dtype=np.int64)

@@ -157,11 +157,17 @@ class Model:
         meta: Mapping[str, Any] | None = None,
         origin: str = "<model>",
         format: str = "thread-json",
+        arrays: ModelArrays | None = None,
     ) -> Model:
-        """A model whose Element and Link objects are built only when first asked for."""
+        """A model whose Element and Link objects are built only when first asked for.
+
+        ``arrays`` may pass the integer columns when the reader built them already.
+        """
         model = cls((), (), meta=meta, origin=origin, format=format)
         model._elements = model._links = None
         model._columns = columns
+        if arrays is not None:
+            model.__dict__["arrays"] = arrays  # seeds the cached property
         return model
 
     def __repr__(self) -> str:

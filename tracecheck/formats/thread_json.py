@@ -29,6 +29,7 @@ from itertools import chain, repeat
 from operator import itemgetter
 from typing import Any
 
+from tracecheck.arrays import ModelArrays
 from tracecheck.errors import InputError
 from tracecheck.formats import register
 from tracecheck.model import Element, Link, Location, Model
@@ -176,9 +177,7 @@ def _strings(values: list[Any], low: int, high: int) -> bool:
 
 
 def _optional(items: list[dict], key: str, low: int, high: int) -> bool:
-    # An absent key reads as a placeholder that passes; an explicit null fails the type.
-    placeholder = "-" * low
-    return _strings(list(map(dict.get, items, repeat(key), repeat(placeholder))), low, high)
+    return _strings(_present(items, key), low, high)
 
 
 _SCALAR_TYPES = frozenset({str, int, float, bool})
@@ -217,11 +216,12 @@ def _items(items: list[Any], allowed: frozenset[str]) -> bool:
 
 def _present(items: list[dict], key: str) -> list[Any]:
     """The values of ``key`` in the items that have it."""
-    values = list(map(dict.get, items, repeat(key), repeat(_ABSENT)))
-    return [v for v in values if v is not _ABSENT] if _ABSENT in values else values
-
-
-_ABSENT = object()
+    count = sum(map(dict.__contains__, items, repeat(key)))
+    if count == 0:
+        return []
+    if count == len(items):
+        return list(map(itemgetter(key), items))
+    return [item[key] for item in items if key in item]
 
 
 def _required(items: list[dict], key: str) -> list[Any] | None:
@@ -250,15 +250,21 @@ def _valid_top(document: Any) -> bool:
 
 
 def _element_columns(elements: list[Any]) -> tuple[list[str], list[str]] | None:
+    """The id and kind columns, if the elements pass the checks that need no codes.
+
+    Ids, kinds and parents are checked on the distinct values :class:`ModelArrays`
+    collects anyway (see :func:`_codes_valid`); here: item shape, keys, optional strings
+    (a parent present must not be null) and attributes.
+    """
     if not _items(elements, _ELEMENT_KEYS):
         return None
     ids, kinds = _required(elements, "id"), _required(elements, "kind")
-    if ids is None or kinds is None or not _strings(ids, 1, _ID_MAX) or not _strings(kinds, 1, _ID_MAX):
+    if ids is None or kinds is None:
         return None
     if not (
         _optional(elements, "name", 0, _SHORT_MAX)
         and _optional(elements, "text", 0, _LONG_MAX)
-        and _optional(elements, "parent", 1, _ID_MAX)
+        and None not in _present(elements, "parent")
         and _valid_attribute_maps(_present(elements, "attributes"))
     ):
         return None
@@ -266,12 +272,12 @@ def _element_columns(elements: list[Any]) -> tuple[list[str], list[str]] | None:
 
 
 def _link_columns(links: list[Any]) -> tuple[list[str], list[str], list[str]] | None:
+    """The end and relation columns, if the links pass the checks that need no codes."""
     if not _items(links, _LINK_KEYS):
         return None
     ends = [_required(links, key) for key in ("source", "target", "relation")]
-    for column in ends:
-        if column is None or not _strings(column, 1, _ID_MAX):
-            return None
+    if any(column is None for column in ends):
+        return None
     if not (
         _optional(links, "id", 1, _ID_MAX)
         and _valid_attribute_maps(_present(links, "attributes"))
@@ -280,13 +286,23 @@ def _link_columns(links: list[Any]) -> tuple[list[str], list[str], list[str]] | 
     return ends[0], ends[1], ends[2]  # type: ignore[return-value]
 
 
+def _codes_valid(arrays: ModelArrays) -> bool:
+    """Ids, kinds, parents, link ends and relations are identifiers (1 to 1000 characters).
+
+    Checked on distinct values: ``names`` holds every distinct element id and every
+    other name a parent or a link end uses, ``kind_names`` and ``rel_names`` the
+    distinct kinds and relations. A value that equals a checked string is itself one.
+    """
+    return (
+        _strings(arrays.names, 1, _ID_MAX)
+        and _strings(arrays.kind_names, 1, _ID_MAX)
+        and _strings(arrays.rel_names, 1, _ID_MAX)
+    )
+
+
 def fast_valid(document: Any) -> bool:
     """True when ``document`` satisfies the thread schema (without running jsonschema)."""
-    return (
-        _valid_top(document)
-        and _element_columns(document["elements"]) is not None
-        and _link_columns(document["links"]) is not None
-    )
+    return _ThreadColumns.build(document, b"", "<document>") is not None
 
 
 # --- error reporting -----------------------------------------------------------------
@@ -387,7 +403,7 @@ def parse(data: bytes, origin: str) -> Model:
         columns = None if document is None else _ThreadColumns.build(document, data, origin)
     if columns is None:
         return _parse_slowly(data, origin)
-    return Model.from_columns(columns, meta=document.get("model"), origin=origin)
+    return Model.from_columns(columns, meta=document.get("model"), origin=origin, arrays=columns.arrays)
 
 
 def _parse_slowly(data: bytes, origin: str) -> Model:
@@ -428,17 +444,30 @@ class _ThreadColumns:
         self._data: bytes | None = data
         self._origin = origin
         self.lines: dict[str, list[int]] | None = None
+        self.arrays: ModelArrays | None = None
 
     @classmethod
     def build(cls, document: Any, data: bytes, origin: str) -> _ThreadColumns | None:
-        """The columns, or ``None`` when the document breaks the schema."""
+        """The columns with their integer codes, or ``None`` when the document breaks the schema."""
         if not _valid_top(document):
             return None
         elements = _element_columns(document["elements"])
         links = None if elements is None else _link_columns(document["links"])
         if elements is None or links is None:
             return None
-        return cls(document, data, origin, elements, links)
+        columns = cls(document, data, origin, elements, links)
+        try:
+            columns.arrays = ModelArrays(columns)
+        except TypeError:  # an unhashable id, kind, parent, end or relation
+            return None
+        if not _codes_valid(columns.arrays):
+            return None
+        if columns.arrays.n != len(columns.element_ids):
+            # Codes describe the first element of each id; check the later copies too.
+            parents = [p for p in columns.element_parents if p is not None]
+            if not (_strings(columns.element_kinds, 1, _ID_MAX) and _strings(parents, 1, _ID_MAX)):
+                return None
+        return columns
 
     def _lines(self) -> dict[str, list[int]]:
         if self.lines is None:
