@@ -60,9 +60,8 @@ class _Scan:
     def chunk(self, block: np.ndarray, offset: int) -> None:
         # One comparison per byte class: several times faster than a lookup table.
         quotes = _unescaped(np.flatnonzero(block == ord('"')), np.flatnonzero(block == ord("\\")))
-        brackets = np.flatnonzero(
-            (block == ord("[")) | (block == ord("]")) | (block == ord("{")) | (block == ord("}"))
-        )
+        folded = block | 0x20  # '[' -> '{' and ']' -> '}'; nothing else lands on those
+        brackets = np.flatnonzero((folded == ord("{")) | (folded == ord("}")))
         newlines = np.flatnonzero(block == ord("\n"))
         outside = (np.searchsorted(quotes, brackets) + self.in_string) % 2 == 0
         brackets = brackets[outside]
