@@ -20,7 +20,7 @@ from tracecheck.model import Element, Model
 if TYPE_CHECKING:
     from tracecheck.arrays import ModelArrays
 
-__all__ = ["DeclarationResult", "evaluate", "evaluate_all", "percent", "matches_where", "counterparts"]
+__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "percent", "matches_where", "counterparts"]
 
 
 @dataclass(frozen=True)
@@ -101,28 +101,39 @@ def evaluate(model: Model, declaration: Declaration) -> DeclarationResult:
     Runs on the model's integer arrays: the same answer as calling
     :func:`counterparts` for every element in scope, in time linear in the links.
     """
+    covered, uncovered, excluded = evaluate_codes(model, declaration)
+    names = model.arrays.names
+
+    def ids(codes: np.ndarray) -> tuple[str, ...]:
+        return tuple(sorted(names[c] for c in codes.tolist()))
+
+    return DeclarationResult(declaration, ids(covered), ids(uncovered), ids(excluded))
+
+
+def evaluate_codes(model: Model, declaration: Declaration) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Covered, uncovered and excluded element codes (``model.arrays``), unsorted.
+
+    For callers that need only part of the answer (the ``coverage`` rule reports the
+    uncovered): turning every covered code into a sorted id costs more than the count.
+    """
     arrays = model.arrays
     code = arrays.kind_code.get(declaration.kind)
     if code is None:
-        return DeclarationResult(declaration, (), (), ())
+        empty = np.zeros(0, dtype=np.int64)
+        return empty, empty, empty
     scope = np.flatnonzero(arrays.kind == code)
     if declaration.where:
         scope = np.array(
             [c for c in scope.tolist() if _attributes_match(arrays.element_attributes(c), declaration.where)],
             dtype=np.int64,
         )
-    names = arrays.names
     if declaration.except_when is not None:
         out = _joined_counts(arrays, declaration.except_when)[scope] > 0
         excluded, scope = scope[out], scope[~out]
     else:
         excluded = scope[:0]
     enough = _joined_counts(arrays, declaration.need)[scope] >= declaration.at_least
-
-    def ids(codes: np.ndarray) -> tuple[str, ...]:
-        return tuple(sorted(names[c] for c in codes.tolist()))
-
-    return DeclarationResult(declaration, ids(scope[enough]), ids(scope[~enough]), ids(excluded))
+    return scope[enough], scope[~enough], excluded
 
 
 def _attributes_match(attributes, where) -> bool:
