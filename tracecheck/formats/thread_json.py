@@ -176,8 +176,8 @@ def _strings(values: list[Any], low: int, high: int) -> bool:
     return (low == 0 or min(map(len, values)) >= low) and max(map(len, values)) <= high
 
 
-def _optional(items: list[dict], key: str, low: int, high: int) -> bool:
-    return _strings(_present(items, key), low, high)
+def _optional(items: list[dict], keys: set[str], key: str, low: int, high: int) -> bool:
+    return _strings(_present(items, key, keys), low, high)
 
 
 _SCALAR_TYPES = frozenset({str, int, float, bool})
@@ -207,18 +207,21 @@ def _valid_attribute_maps(maps: list[Any]) -> bool:
     return True
 
 
-def _items(items: list[Any], allowed: frozenset[str]) -> bool:
-    """Every item is an object with no key outside ``allowed``."""
+def _keys(items: list[Any], allowed: frozenset[str]) -> set[str] | None:
+    """The keys the items use, if every item is an object with no key outside ``allowed``."""
     if not items:
-        return True
-    return set(map(type, items)) == {dict} and set().union(*items) <= allowed
+        return set()
+    if set(map(type, items)) != {dict}:
+        return None
+    keys = set().union(*items)
+    return keys if keys <= allowed else None
 
 
-def _present(items: list[dict], key: str) -> list[Any]:
-    """The values of ``key`` in the items that have it."""
-    count = sum(map(dict.__contains__, items, repeat(key)))
-    if count == 0:
+def _present(items: list[dict], key: str, keys: set[str]) -> list[Any]:
+    """The values of ``key`` in the items that have it (``keys``: every key used)."""
+    if key not in keys:
         return []
+    count = sum(map(dict.__contains__, items, repeat(key)))
     if count == len(items):
         return list(map(itemgetter(key), items))
     return [item[key] for item in items if key in item]
@@ -256,16 +259,17 @@ def _element_columns(elements: list[Any]) -> tuple[list[str], list[str]] | None:
     collects anyway (see :func:`_codes_valid`); here: item shape, keys, optional strings
     (a parent present must not be null) and attributes.
     """
-    if not _items(elements, _ELEMENT_KEYS):
+    keys = _keys(elements, _ELEMENT_KEYS)
+    if keys is None:
         return None
     ids, kinds = _required(elements, "id"), _required(elements, "kind")
     if ids is None or kinds is None:
         return None
     if not (
-        _optional(elements, "name", 0, _SHORT_MAX)
-        and _optional(elements, "text", 0, _LONG_MAX)
-        and None not in _present(elements, "parent")
-        and _valid_attribute_maps(_present(elements, "attributes"))
+        _optional(elements, keys, "name", 0, _SHORT_MAX)
+        and _optional(elements, keys, "text", 0, _LONG_MAX)
+        and None not in _present(elements, "parent", keys)
+        and _valid_attribute_maps(_present(elements, "attributes", keys))
     ):
         return None
     return ids, kinds
@@ -273,14 +277,15 @@ def _element_columns(elements: list[Any]) -> tuple[list[str], list[str]] | None:
 
 def _link_columns(links: list[Any]) -> tuple[list[str], list[str], list[str]] | None:
     """The end and relation columns, if the links pass the checks that need no codes."""
-    if not _items(links, _LINK_KEYS):
+    keys = _keys(links, _LINK_KEYS)
+    if keys is None:
         return None
     ends = [_required(links, key) for key in ("source", "target", "relation")]
     if any(column is None for column in ends):
         return None
     if not (
-        _optional(links, "id", 1, _ID_MAX)
-        and _valid_attribute_maps(_present(links, "attributes"))
+        _optional(links, keys, "id", 1, _ID_MAX)
+        and _valid_attribute_maps(_present(links, "attributes", keys))
     ):
         return None
     return ends[0], ends[1], ends[2]  # type: ignore[return-value]
