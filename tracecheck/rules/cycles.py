@@ -114,12 +114,11 @@ def cycle(context: RuleContext) -> Iterator[Hit]:
         found = _array_components(arrays, src[chosen], tgt[chosen])
         if not found:
             continue
-        # The first link of each (source, target) pair: where the example walk starts.
-        pairs = zip(src[chosen].tolist(), tgt[chosen].tolist(), strict=True)
-        first_link = dict(zip(pairs, firsts[chosen].tolist(), strict=True))
         for members, walk in found:
-            pair = (arrays.position[walk[0]], arrays.position[walk[1]])
-            yield _hit(relation, members, walk, location=columns.link_location(first_link[pair]))
+            # The first link of the walk's first step (distinct pairs: exactly one).
+            a, b = arrays.position[walk[0]], arrays.position[walk[1]]
+            step = chosen[(src[chosen] == a) & (tgt[chosen] == b)][0]
+            yield _hit(relation, members, walk, location=columns.link_location(int(firsts[step])))
     yield from _parent_cycles(context)
 
 
