@@ -429,7 +429,7 @@ def _parse_slowly(data: bytes, origin: str) -> Model:
     columns = _ThreadColumns.build(document, data, origin)
     assert columns is not None
     columns.lines = lines
-    return Model.from_columns(columns, meta=document.get("model"), origin=origin)
+    return Model.from_columns(columns, meta=document.get("model"), origin=origin, arrays=columns.arrays)
 
 
 class _ThreadColumns:
