@@ -18,11 +18,9 @@ violations, each with its file, line and JSON path.
 
 from __future__ import annotations
 
-import gc
 import json
 import re
-from collections.abc import Iterator, Mapping
-from contextlib import contextmanager
+from collections.abc import Mapping
 from functools import lru_cache
 from importlib import resources
 from itertools import chain, repeat
@@ -30,6 +28,7 @@ from operator import itemgetter
 from typing import Any
 
 from tracecheck.arrays import ModelArrays
+from tracecheck.collection import collection_paused
 from tracecheck.errors import InputError
 from tracecheck.formats import register
 from tracecheck.model import Element, Link, Location, Model
@@ -376,19 +375,6 @@ def _schema_errors(document: Any, origin: str, lines: dict[str, list[int]]) -> I
 # --- building the model ----------------------------------------------------------------
 
 
-@contextmanager
-def _collection_paused() -> Iterator[None]:
-    # Decoding allocates millions of containers; the cyclic collector would walk them
-    # again and again (about half the decode time at 100k elements) to find nothing.
-    enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if enabled:
-            gc.enable()
-
-
 def parse(data: bytes, origin: str) -> Model:
     """Parse thread JSON bytes into a :class:`Model`.
 
@@ -398,7 +384,7 @@ def parse(data: bytes, origin: str) -> Model:
         Not UTF-8, not JSON (with line and column), or not valid against the schema
         (every violation, with line and JSON path).
     """
-    with _collection_paused():
+    with collection_paused():
         text = _decode_text(data, origin)
         try:
             document = _DECODER.decode(text)
