@@ -122,3 +122,18 @@ def test_a_later_copy_of_an_id_is_checked_too():
                     "elements": [{"id": "A", "kind": "test"}, {"id": "A", **bad}]}
         assert not jsonschema.Draft202012Validator(schema()).is_valid(document)
         assert fast_valid(document) is False
+
+
+def test_ids_holding_the_separator_of_the_compact_copies_still_match():
+    # Oracle: plain set difference of link ends against element ids (as in test_rules).
+    from tracecheck.config import Config
+    from tracecheck.rules.engine import run_rules
+
+    data = json.dumps({"format": "tracecheck-thread/1",
+                       "elements": [{"id": "A\u0000B", "kind": "test"}, {"id": "A", "kind": "requirement"}],
+                       "links": [{"source": "A\u0000B", "target": "A", "relation": "verifies"},
+                                 {"source": "A\u0000B", "target": "B", "relation": "verifies"}]}).encode()
+    model = parse(data, "m.json")
+    dangling = {f.link for f in run_rules(model, Config()) if f.rule == "dangling-link"}
+    assert dangling == {("A\u0000B", "B", "verifies")}
+    assert model.position == {"A\u0000B": 0, "A": 1}
