@@ -220,10 +220,10 @@ def _present(items: list[dict], key: str, keys: set[str]) -> list[Any]:
     """The values of ``key`` in the items that have it (``keys``: every key used)."""
     if key not in keys:
         return []
-    count = sum(map(dict.__contains__, items, repeat(key)))
-    if count == len(items):
+    try:  # the usual case when some item has the key: every item has it
         return list(map(itemgetter(key), items))
-    return [item[key] for item in items if key in item]
+    except KeyError:
+        return [item[key] for item in items if key in item]
 
 
 def _required(items: list[dict], key: str) -> list[Any] | None:
