@@ -147,6 +147,11 @@ class ModelArrays:
     def triple_count(self) -> np.ndarray:
         return self._triples[1]
 
+    def distinct_links(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Source, target and relation codes of each distinct triple (first-seen order)."""
+        firsts = self.triple_first
+        return self.src[firsts], self.tgt[firsts], self.rel[firsts]
+
     def triple_links(self, triple: int) -> list[int]:
         """File indexes of every link of distinct triple number ``triple``."""
         _, counts, order, starts = self._triples

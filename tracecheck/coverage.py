@@ -146,15 +146,20 @@ def _attributes_match(attributes, where) -> bool:
 def _joined_counts(arrays: ModelArrays, condition: Condition) -> np.ndarray:
     """Per element code: distinct existing elements of ``condition.kinds`` joined to it."""
     n = arrays.n
-    mask = np.isin(arrays.rel, arrays.rel_codes(condition.relations))
-    mine, other = (arrays.tgt, arrays.src) if condition.direction == "incoming" else (arrays.src, arrays.tgt)
+    src, tgt, rel = arrays.distinct_links()
+    codes = arrays.rel_codes(condition.relations)
+    mask = np.isin(rel, codes)
+    mine, other = (tgt, src) if condition.direction == "incoming" else (src, tgt)
     mask &= (mine < n) & (other < n) & (mine != other)
     mine, other = mine[mask], other[mask]
     if condition.kinds is not None:
         keep = np.isin(arrays.kind[other], arrays.kind_codes(condition.kinds))
         mine, other = mine[keep], other[keep]
-    pairs = np.unique(mine * max(n, 1) + other)
-    return np.bincount(pairs // max(n, 1), minlength=n)
+    if len(codes) > 1:  # one pair may be joined by several relations: count it once
+        pairs = np.sort(mine * n + other)
+        pairs = pairs[np.concatenate(([True], pairs[1:] != pairs[:-1]))] if len(pairs) else pairs
+        mine = pairs // n
+    return np.bincount(mine, minlength=n)
 
 
 def evaluate_all(model: Model, declarations: Iterable[Declaration]) -> list[DeclarationResult]:
