@@ -137,3 +137,12 @@ def test_ids_holding_the_separator_of_the_compact_copies_still_match():
     dangling = {f.link for f in run_rules(model, Config()) if f.rule == "dangling-link"}
     assert dangling == {("A\u0000B", "B", "verifies")}
     assert model.position == {"A\u0000B": 0, "A": 1}
+
+
+def test_elements_and_links_stay_assignable_and_the_arrays_follow():
+    from tracecheck.model import Element, Link, Model
+
+    model = Model([Element("A", "test")], [Link("A", "B", "verifies")])
+    assert model.arrays.n == 1
+    model.elements = [Element("A", "test"), Element("B", "requirement")]
+    assert (model.arrays.n, model.kind_of("B"), model.element_count, model.link_count) == (2, "requirement", 2, 1)

@@ -196,6 +196,24 @@ class Model:
             self._materialise()
         return self._links  # type: ignore[return-value]
 
+    @elements.setter
+    def elements(self, elements: Iterable[Element]) -> None:
+        # Kept assignable as when these were plain attributes; the columns and integer
+        # arrays then follow the new objects (other cached indexes, as before, do not).
+        links = self.links
+        self._elements, self._links = tuple(elements), links
+        self._forget_columns()
+
+    @links.setter
+    def links(self, links: Iterable[Link]) -> None:
+        elements = self.elements
+        self._elements, self._links = elements, tuple(links)
+        self._forget_columns()
+
+    def _forget_columns(self) -> None:
+        self._columns = None
+        self.__dict__.pop("arrays", None)
+
     @property
     def element_count(self) -> int:
         """Number of elements, duplicates included (without materialising them)."""
