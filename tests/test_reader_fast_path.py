@@ -32,7 +32,7 @@ def _exact_lines(text: str) -> dict[str, list[int]]:
     return {key: thread_json._lines(text, starts) for key, starts in positions.items.items()}
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=120, deadline=None)
 @given(
     items,
     items,
