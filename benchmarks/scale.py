@@ -1,10 +1,19 @@
 """Scale benchmark: ``check`` at 10k / 100k / 1M elements against ``json.loads``.
 
 Generates a synthetic ferry shore-charging thread (about three links per element,
-engineering-like text), then measures in fresh subprocesses, so peak memory is the
-process's own: the baseline (read the bytes and ``json.loads`` them) and
-``tracecheck check`` (read, parse, validate, run every rule, render JSON). Prints a
-table with wall times, peak resident memory and ratios against the baseline.
+engineering-like text, a handful of planted defects so that findings, locations and
+the cycle rule's follow-up work are part of the run), then measures each step in a
+fresh subprocess, so peak memory is the process's own:
+
+* the baseline: read the bytes and ``json.loads`` them (and ``orjson.loads`` when
+  orjson is importable; it is not a dependency, only a second yardstick);
+* ``tracecheck check FILE --format json -o OUT`` through ``commands.check.run`` (read,
+  decode, validate, every rule, render, write), timed after importing the command
+  module; the same process then times ``json.loads`` of the file once more, which gives
+  a ratio that machine load cannot skew between processes.
+
+Each measurement is the best of ``--repeat`` runs. Prints the machine, then a markdown
+table of wall times, peak resident memory and the ratios.
 
     python benchmarks/scale.py --sizes 10000,100000
 """
@@ -13,6 +22,8 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
+import platform
 import random
 import subprocess
 import sys
@@ -33,13 +44,22 @@ t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
 print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """
 
+ORJSON = """
+import orjson, resource, sys, time
+t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); orjson.loads(data)
+print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+"""
+
 CHECK = """
-import io, resource, sys, time
+import io, json, resource, sys, time
 from tracecheck.commands import check
 from tracecheck.commands.common import Streams
 t = time.perf_counter()
 code = check.run(sys.argv[1], fmt='json', output=sys.argv[2], streams=Streams(io.StringIO(), sys.stderr))
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+elapsed = time.perf_counter() - t
+rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
+print(elapsed, rss, time.perf_counter() - t)
 """
 
 
@@ -83,32 +103,73 @@ def generate(n: int, path: Path, seed: int = 7) -> None:
         target = requirements[rng.randrange(len(requirements))]
         if target != element_id:
             link(element_id, target, "traces_to")
+    # A few defects, as a gate sees them: a derives_from loop, a dangling link, a copied
+    # link, a misspelt relation, and the coverage gaps these leave.
+    a, b, c = requirements[3], requirements[5], requirements[7]
+    link(a, b, "derives_from"), link(b, c, "derives_from"), link(c, a, "derives_from")
+    link(by_kind["test"][0], "REQ-DELETED", "verifies")
+    links.append(dict(links[len(links) // 2]))
+    link(by_kind["function"][0], by_kind["component"][0], "allocated-to")
     path.write_text(json.dumps({"format": "tracecheck-thread/1", "elements": elements, "links": links},
                                indent=1), encoding="utf-8")
 
 
-def measure(script: str, *args: str) -> tuple[float, float]:
-    out = subprocess.run([sys.executable, "-c", script, *args], check=True, capture_output=True, text=True)
-    seconds, rss_kib = out.stdout.split()
-    return float(seconds), float(rss_kib) / 1024
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def measure(script: str, *args: str) -> tuple[float, ...]:
+    # This checkout first, so the run measures the code beside the script.
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(filter(None, [str(ROOT), os.environ.get("PYTHONPATH")]))}
+    out = subprocess.run([sys.executable, "-c", script, *args], check=True, capture_output=True, text=True, env=env)
+    return tuple(float(x) for x in out.stdout.split())
+
+
+def best(script: str, repeat: int, *args: str) -> tuple[float, ...]:
+    """Fastest of ``repeat`` runs; memory is each run's own peak, so take the smallest too."""
+    runs = [measure(script, *args) for _ in range(repeat)]
+    return tuple(min(column) for column in zip(*runs, strict=True))
+
+
+def has_orjson() -> bool:
+    return subprocess.run([sys.executable, "-c", "import orjson"], capture_output=True).returncode == 0
+
+
+def machine() -> str:
+    load = ", ".join(f"{x:.1f}" for x in os.getloadavg())
+    import numpy
+    import scipy
+
+    return (
+        f"{platform.machine()}, {os.cpu_count()} cores (load average at start {load}), "
+        f"Python {platform.python_version()}, numpy {numpy.__version__}, scipy {scipy.__version__}, "
+        f"orjson {'installed (baseline only)' if has_orjson() else 'not installed'}"
+    )
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__)
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--sizes", default="10000,100000")
+    parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
+    print(f"Machine: {machine()}")
+    orjson = has_orjson()
     rows = []
     with tempfile.TemporaryDirectory() as tmp:
         for n in (int(s) for s in args.sizes.split(",")):
             path = Path(tmp) / f"thread-{n}.json"
             generate(n, path)
-            base_t, base_m = min(measure(BASELINE, str(path)) for _ in range(2))
-            check_t, check_m = min(measure(CHECK, str(path), str(Path(tmp) / "out.json")) for _ in range(2))
-            rows.append((n, path.stat().st_size / 1e6, base_t, check_t, base_m, check_m))
-    print("| elements | MB | json.loads s | check s | ratio | json.loads MiB | check MiB | mem ratio |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
-    for n, mb, bt, ct, bm, cm in rows:
-        print(f"| {n:,} | {mb:.1f} | {bt:.2f} | {ct:.2f} | {ct / bt:.2f}x | {bm:.0f} | {cm:.0f} | {cm / bm:.2f}x |")
+            base_t, base_m = best(BASELINE, args.repeat, str(path))
+            fast_t, fast_m = best(ORJSON, args.repeat, str(path)) if orjson else (float("nan"),) * 2
+            check_t, check_m, inner_t = best(CHECK, args.repeat, str(path), str(Path(tmp) / "out.json"))
+            rows.append((n, path.stat().st_size / 1e6, base_t, fast_t, check_t, inner_t, base_m, check_m))
+            path.unlink()
+    print()
+    print("| elements | MB | json.loads s | orjson.loads s | check s | check / json.loads "
+          "| check / json.loads, same process | check / orjson.loads | json.loads MiB | check MiB | memory ratio |")
+    print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
+    for n, mb, bt, ft, ct, it, bm, cm in rows:
+        print(f"| {n:,} | {mb:.0f} | {bt:.2f} | {ft:.2f} | {ct:.2f} | {ct / bt:.2f}x | {ct / it:.2f}x "
+              f"| {ct / ft:.2f}x | {bm / 1024:.0f} | {cm / 1024:.0f} | {cm / bm:.2f}x |")
 
 
 if __name__ == "__main__":

@@ -31,8 +31,8 @@ def input_info(model: Model, data: bytes, config: Config) -> list[dict[str, Any]
             "path": model.origin,
             "format": model.format,
             "sha256": hashlib.sha256(data).hexdigest(),
-            "elements": len(model.elements),
-            "links": len(model.links),
+            "elements": model.element_count,
+            "links": model.link_count,
         }
     ]
     if config.path is not None:

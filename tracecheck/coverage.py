@@ -10,11 +10,17 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 from decimal import ROUND_HALF_UP, Decimal
+from typing import TYPE_CHECKING
+
+import numpy as np
 
 from tracecheck.config import Condition, Declaration
 from tracecheck.model import Element, Model
 
-__all__ = ["DeclarationResult", "evaluate", "evaluate_all", "percent", "matches_where", "counterparts"]
+if TYPE_CHECKING:
+    from tracecheck.arrays import ModelArrays
+
+__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "percent", "matches_where", "counterparts"]
 
 
 @dataclass(frozen=True)
@@ -63,10 +69,7 @@ def _value_matches(value, allowed: tuple) -> bool:
 
 def matches_where(element: Element, where: Iterable[tuple[str, tuple]]) -> bool:
     """True when every filtered attribute of ``element`` has one of the allowed values."""
-    for key, allowed in where:
-        if key not in element.attributes or not _value_matches(element.attributes[key], allowed):
-            return False
-    return True
+    return _attributes_match(element.attributes, where)
 
 
 def counterparts(model: Model, element_id: str, condition: Condition) -> set[str]:
@@ -93,20 +96,70 @@ def counterparts(model: Model, element_id: str, condition: Condition) -> set[str
 
 
 def evaluate(model: Model, declaration: Declaration) -> DeclarationResult:
-    """Evaluate one declaration over ``model`` (each distinct id once, sorted)."""
-    covered, uncovered, excluded = [], [], []
-    for element in model.by_id.values():
-        if element.kind != declaration.kind or not matches_where(element, declaration.where):
-            continue
-        if declaration.except_when is not None and counterparts(
-            model, element.id, declaration.except_when
-        ):
-            excluded.append(element.id)
-        elif len(counterparts(model, element.id, declaration.need)) >= declaration.at_least:
-            covered.append(element.id)
-        else:
-            uncovered.append(element.id)
-    return DeclarationResult(declaration, tuple(sorted(covered)), tuple(sorted(uncovered)), tuple(sorted(excluded)))
+    """Evaluate one declaration over ``model`` (each distinct id once, sorted).
+
+    Runs on the model's integer arrays: the same answer as calling
+    :func:`counterparts` for every element in scope, in time linear in the links.
+    """
+    covered, uncovered, excluded = evaluate_codes(model, declaration)
+    names = model.arrays.names
+
+    def ids(codes: np.ndarray) -> tuple[str, ...]:
+        return tuple(sorted(names[c] for c in codes.tolist()))
+
+    return DeclarationResult(declaration, ids(covered), ids(uncovered), ids(excluded))
+
+
+def evaluate_codes(model: Model, declaration: Declaration) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Covered, uncovered and excluded element codes (``model.arrays``), unsorted.
+
+    For callers that need only part of the answer (the ``coverage`` rule reports the
+    uncovered): turning every covered code into a sorted id costs more than the count.
+    """
+    arrays = model.arrays
+    code = arrays.kind_code.get(declaration.kind)
+    if code is None:
+        empty = np.zeros(0, dtype=np.int64)
+        return empty, empty, empty
+    scope = np.flatnonzero(arrays.kind == code)
+    if declaration.where:
+        scope = np.array(
+            [c for c in scope.tolist() if _attributes_match(arrays.element_attributes(c), declaration.where)],
+            dtype=np.int64,
+        )
+    if declaration.except_when is not None:
+        out = _joined_counts(arrays, declaration.except_when)[scope] > 0
+        excluded, scope = scope[out], scope[~out]
+    else:
+        excluded = scope[:0]
+    enough = _joined_counts(arrays, declaration.need)[scope] >= declaration.at_least
+    return scope[enough], scope[~enough], excluded
+
+
+def _attributes_match(attributes, where) -> bool:
+    for key, allowed in where:
+        if key not in attributes or not _value_matches(attributes[key], allowed):
+            return False
+    return True
+
+
+def _joined_counts(arrays: ModelArrays, condition: Condition) -> np.ndarray:
+    """Per element code: distinct existing elements of ``condition.kinds`` joined to it."""
+    n = arrays.n
+    src, tgt, rel = arrays.distinct_links()
+    codes = arrays.rel_codes(condition.relations)
+    mask = np.isin(rel, codes)
+    mine, other = (tgt, src) if condition.direction == "incoming" else (src, tgt)
+    mask &= (mine < n) & (other < n) & (mine != other)
+    mine, other = mine[mask], other[mask]
+    if condition.kinds is not None:
+        keep = np.isin(arrays.kind[other], arrays.kind_codes(condition.kinds))
+        mine, other = mine[keep], other[keep]
+    if len(codes) > 1:  # one pair may be joined by several relations: count it once
+        pairs = np.sort(mine * n + other)
+        pairs = pairs[np.concatenate(([True], pairs[1:] != pairs[:-1]))] if len(pairs) else pairs
+        mine = pairs // n
+    return np.bincount(mine, minlength=n)
 
 
 def evaluate_all(model: Model, declarations: Iterable[Declaration]) -> list[DeclarationResult]:

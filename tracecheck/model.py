@@ -1,18 +1,25 @@
 """The one in-memory model every adapter builds and every analysis reads.
 
 Elements and links are frozen dataclasses in file order (duplicates kept, so the
-rules can report them). Indexes are computed once, on first use, and map ids to
-integer positions so analyses can work on plain integer arrays.
+rules can report them). A model is built either from those objects or, by a reader
+that wants to be fast, from *columns* (:class:`Columns`): the ids, kinds, parents and
+link ends as plain lists, with the objects materialised only when someone asks for
+``model.elements`` / ``model.links`` / ``model.by_id``. The rules and coverage read
+``model.arrays`` (:class:`tracecheck.arrays.ModelArrays`), integer-coded numpy columns
+built once from either kind of model.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
-from typing import Any, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple, Protocol
 
-__all__ = ["Location", "Element", "Link", "Model", "AttributeValue"]
+if TYPE_CHECKING:
+    from tracecheck.arrays import ModelArrays
+
+__all__ = ["Location", "Element", "Link", "Model", "AttributeValue", "Columns", "ObjectColumns"]
 
 AttributeValue = str | int | float | bool | list
 
@@ -60,6 +67,59 @@ class Link:
         return (self.source, self.target, self.relation)
 
 
+class Columns(Protocol):
+    """A model as columns, in file order (duplicates kept): what the fast path reads.
+
+    ``element_parents`` holds ``None`` where an element has no parent. The methods give
+    one item's attributes or location, or materialise the objects, on demand.
+    """
+
+    element_ids: Sequence[str]
+    element_kinds: Sequence[str]
+    element_parents: Sequence[str | None]
+    link_sources: Sequence[str]
+    link_targets: Sequence[str]
+    link_relations: Sequence[str]
+
+    def element_attributes(self, index: int) -> Mapping[str, Any]: ...
+
+    def element_location(self, index: int) -> Location | None: ...
+
+    def link_location(self, index: int) -> Location | None: ...
+
+    def link(self, index: int) -> Link: ...
+
+    def materialise(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]: ...
+
+
+class ObjectColumns:
+    """The columns of a model given as Element and Link objects."""
+
+    def __init__(self, elements: tuple[Element, ...], links: tuple[Link, ...]) -> None:
+        self._elements, self._links = elements, links
+        self.element_ids = [e.id for e in elements]
+        self.element_kinds = [e.kind for e in elements]
+        self.element_parents = [e.parent for e in elements]
+        self.link_sources = [x.source for x in links]
+        self.link_targets = [x.target for x in links]
+        self.link_relations = [x.relation for x in links]
+
+    def element_attributes(self, index: int) -> Mapping[str, Any]:
+        return self._elements[index].attributes
+
+    def element_location(self, index: int) -> Location | None:
+        return self._elements[index].location
+
+    def link_location(self, index: int) -> Location | None:
+        return self._links[index].location
+
+    def link(self, index: int) -> Link:
+        return self._links[index]
+
+    def materialise(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]:
+        return self._elements, self._links
+
+
 class Model:
     """A digital thread: elements and links in source order, plus lazy indexes.
 
@@ -82,14 +142,97 @@ class Model:
         origin: str = "<model>",
         format: str = "thread-json",
     ) -> None:
-        self.elements: tuple[Element, ...] = tuple(elements)
-        self.links: tuple[Link, ...] = tuple(links)
+        self._elements: tuple[Element, ...] | None = tuple(elements)
+        self._links: tuple[Link, ...] | None = tuple(links)
+        self._columns: Columns | None = None
         self.meta: Mapping[str, Any] = dict(meta or {})
         self.origin = origin
         self.format = format
 
+    @classmethod
+    def from_columns(
+        cls,
+        columns: Columns,
+        *,
+        meta: Mapping[str, Any] | None = None,
+        origin: str = "<model>",
+        format: str = "thread-json",
+        arrays: ModelArrays | None = None,
+    ) -> Model:
+        """A model whose Element and Link objects are built only when first asked for.
+
+        ``arrays`` may pass the integer columns when the reader built them already.
+        """
+        model = cls((), (), meta=meta, origin=origin, format=format)
+        model._elements = model._links = None
+        model._columns = columns
+        if arrays is not None:
+            model.__dict__["arrays"] = arrays  # seeds the cached property
+        return model
+
     def __repr__(self) -> str:
-        return f"Model({self.origin!r}, {len(self.elements)} elements, {len(self.links)} links)"
+        return f"Model({self.origin!r}, {self.element_count} elements, {self.link_count} links)"
+
+    @property
+    def columns(self) -> Columns:
+        """The model as columns (built from the objects on first use)."""
+        if self._columns is None:
+            self._columns = ObjectColumns(self.elements, self.links)
+        return self._columns
+
+    def _materialise(self) -> None:
+        assert self._columns is not None
+        self._elements, self._links = self._columns.materialise()
+
+    @property
+    def elements(self) -> tuple[Element, ...]:
+        if self._elements is None:
+            self._materialise()
+        return self._elements  # type: ignore[return-value]
+
+    @property
+    def links(self) -> tuple[Link, ...]:
+        if self._links is None:
+            self._materialise()
+        return self._links  # type: ignore[return-value]
+
+    @elements.setter
+    def elements(self, elements: Iterable[Element]) -> None:
+        # Kept assignable as when these were plain attributes; the columns and integer
+        # arrays then follow the new objects (other cached indexes, as before, do not).
+        links = self.links
+        self._elements, self._links = tuple(elements), links
+        self._forget_columns()
+
+    @links.setter
+    def links(self, links: Iterable[Link]) -> None:
+        elements = self.elements
+        self._elements, self._links = elements, tuple(links)
+        self._forget_columns()
+
+    def _forget_columns(self) -> None:
+        self._columns = None
+        self.__dict__.pop("arrays", None)
+
+    @property
+    def element_count(self) -> int:
+        """Number of elements, duplicates included (without materialising them)."""
+        if self._elements is not None:
+            return len(self._elements)
+        return len(self.columns.element_ids)
+
+    @property
+    def link_count(self) -> int:
+        if self._links is not None:
+            return len(self._links)
+        return len(self.columns.link_sources)
+
+    @cached_property
+    def arrays(self) -> ModelArrays:
+        """Integer-coded columns for the rules and coverage (built once)."""
+        from tracecheck.arrays import ModelArrays
+
+        return ModelArrays(self.columns)
 
     @cached_property
     def by_id(self) -> dict[str, Element]:
@@ -102,7 +245,7 @@ class Model:
     @cached_property
     def position(self) -> dict[str, int]:
         """Integer index of each distinct element id, in first-seen order."""
-        return {element_id: n for n, element_id in enumerate(self.by_id)}
+        return dict(self.arrays.position)
 
     @cached_property
     def outgoing(self) -> dict[str, list[Link]]:
@@ -122,12 +265,16 @@ class Model:
 
     @cached_property
     def kinds(self) -> dict[str, int]:
-        """Number of distinct elements per kind."""
-        counts: dict[str, int] = {}
-        for element in self.by_id.values():
-            counts[element.kind] = counts.get(element.kind, 0) + 1
-        return counts
+        """Number of distinct elements per kind, kinds in first-seen order."""
+        return self.arrays.kind_counts()
 
     def kind_of(self, element_id: str) -> str | None:
-        element = self.by_id.get(element_id)
-        return None if element is None else element.kind
+        arrays = self.arrays
+        index = arrays.position.get(element_id)
+        return None if index is None else arrays.kind_names[arrays.kind[index]]
+
+    def location_of(self, element_id: str) -> Location | None:
+        """Location of the first element with ``element_id`` (``None`` if there is none)."""
+        arrays = self.arrays
+        index = arrays.position.get(element_id)
+        return None if index is None else self.columns.element_location(int(arrays.first[index]))

@@ -9,6 +9,7 @@ from pathlib import Path
 from tracecheck import gitsource
 from tracecheck.baseline import apply_baseline, load_baseline
 from tracecheck.check import check_model
+from tracecheck.collection import collection_paused
 from tracecheck.commands.common import Streams, emit, load
 from tracecheck.commands.outcome import apply_review, ci_uri, step_summary
 from tracecheck.report import RenderOptions, render
@@ -33,6 +34,15 @@ def run(
 ) -> int:
     streams = streams or Streams.default()
     options = options or RenderOptions()
+    # The model is dropped (freed by reference counting) before the collector resumes,
+    # so it never walks the decoded document: see tracecheck.collection.
+    with collection_paused():
+        return _run(spec, fmt, output, config_option, input_format, fail_on, options, streams,
+                    baseline, waivers_option, today_option)
+
+
+def _run(spec, fmt, output, config_option, input_format, fail_on, options, streams,
+         baseline, waivers_option, today_option) -> int:
     known = load_baseline(Path(baseline)) if baseline else None  # a bad baseline fails first
     loaded = load(spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
     result = check_model(loaded.model, loaded.source.data, loaded.config, fail_on=fail_on)

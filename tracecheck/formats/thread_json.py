@@ -1,10 +1,18 @@
 """Thread JSON (``tracecheck-thread/1``), the native format.
 
-The reader decodes the two big arrays one item at a time so it knows the line every
-element and link starts on, and validates while it builds the model. The published
-contract is ``schemas/thread.schema.json``; the fast checks here accept exactly what
-that schema accepts (a property test holds them to it). When the fast checks find
-anything wrong, the schema itself is run over the document so the user gets *all*
+The reader decodes the whole document with the C decoder (garbage collection paused:
+the decoded tree has no cycles to collect), then checks it against the rules of
+``schemas/thread.schema.json`` column by column — ids, kinds, link ends, optional
+strings and attribute values each checked by a few C-level ``map``/``set`` passes
+rather than per-item Python calls — and hands the columns to a lazy
+:class:`~tracecheck.model.Model`: no Element or Link object is built unless someone
+asks for one. The line each element and link starts on is found by a vectorised byte
+scan (:mod:`tracecheck.formats.json_lines`) when a location is first needed.
+
+The published contract is ``schemas/thread.schema.json``; the column checks accept
+exactly what that schema accepts (a property test holds them to it). When they find
+anything wrong, or the document is not JSON, the reader decodes it again item by item
+to learn every item's line, and runs the schema itself so the user gets *all*
 violations, each with its file, line and JSON path.
 """
 
@@ -15,8 +23,12 @@ import re
 from collections.abc import Mapping
 from functools import lru_cache
 from importlib import resources
+from itertools import chain, repeat
+from operator import itemgetter
 from typing import Any
 
+from tracecheck.arrays import ModelArrays
+from tracecheck.collection import collection_paused
 from tracecheck.errors import InputError
 from tracecheck.formats import register
 from tracecheck.model import Element, Link, Location, Model
@@ -145,11 +157,7 @@ def _lines(text: str, starts: list[int]) -> list[int]:
     return lines
 
 
-# --- fast validation: mirrors schemas/thread.schema.json ------------------------------
-
-
-def _is_id(value: Any) -> bool:
-    return type(value) is str and 0 < len(value) <= _ID_MAX
+# --- fast validation: mirrors schemas/thread.schema.json, one column at a time ---------
 
 
 def _is_scalar(value: Any) -> bool:
@@ -158,48 +166,71 @@ def _is_scalar(value: Any) -> bool:
     return type(value) in (int, float, bool)
 
 
-def _valid_attributes(value: Any) -> bool:
-    if type(value) is not dict:
+def _strings(values: list[Any], low: int, high: int) -> bool:
+    """Every value is a string of ``low`` to ``high`` characters (schema minLength/maxLength)."""
+    if not values:
+        return True
+    if set(map(type, values)) != {str}:
         return False
-    for key, item in value.items():
-        if not 0 < len(key) <= _ID_MAX:
-            return False
-        if type(item) is list:
-            if not all(_is_scalar(x) for x in item):
+    return (low == 0 or min(map(len, values)) >= low) and max(map(len, values)) <= high
+
+
+def _optional(items: list[dict], keys: set[str], key: str, low: int, high: int) -> bool:
+    return _strings(_present(items, key, keys), low, high)
+
+
+_SCALAR_TYPES = frozenset({str, int, float, bool})
+
+
+def _valid_attribute_maps(maps: list[Any]) -> bool:
+    """Each map is an object of non-empty keys whose values are scalars or lists of them."""
+    if not maps:
+        return True
+    if set(map(type, maps)) != {dict}:
+        return False
+    keys = set().union(*maps)  # few distinct keys: check those
+    if keys and (min(map(len, keys)) < 1 or max(map(len, keys)) > _ID_MAX):
+        return False
+    values = list(chain.from_iterable(map(dict.values, maps)))
+    types = set(map(type, values))
+    if not types <= _SCALAR_TYPES | {list}:
+        return False
+    if types == {str}:
+        return not values or max(map(len, values)) <= _SCALAR_MAX
+    for value in values:
+        if type(value) is list:
+            if not all(map(_is_scalar, value)):
                 return False
-        elif not _is_scalar(item):
+        elif type(value) is str and len(value) > _SCALAR_MAX:
             return False
     return True
 
 
-def _optional_string(obj: dict, key: str, limit: int) -> bool:
-    value = obj.get(key)
-    return value is None and key not in obj or (type(value) is str and len(value) <= limit)
+def _keys(items: list[Any], allowed: frozenset[str]) -> set[str] | None:
+    """The keys the items use, if every item is an object with no key outside ``allowed``."""
+    if not items:
+        return set()
+    if set(map(type, items)) != {dict}:
+        return None
+    keys = set().union(*items)
+    return keys if keys <= allowed else None
 
 
-def _valid_element(obj: Any) -> bool:
-    return (
-        type(obj) is dict
-        and obj.keys() <= _ELEMENT_KEYS
-        and _is_id(obj.get("id"))
-        and _is_id(obj.get("kind"))
-        and _optional_string(obj, "name", _SHORT_MAX)
-        and _optional_string(obj, "text", _LONG_MAX)
-        and ("parent" not in obj or _is_id(obj["parent"]))
-        and ("attributes" not in obj or _valid_attributes(obj["attributes"]))
-    )
+def _present(items: list[dict], key: str, keys: set[str]) -> list[Any]:
+    """The values of ``key`` in the items that have it (``keys``: every key used)."""
+    if key not in keys:
+        return []
+    try:  # the usual case when some item has the key: every item has it
+        return list(map(itemgetter(key), items))
+    except KeyError:
+        return [item[key] for item in items if key in item]
 
 
-def _valid_link(obj: Any) -> bool:
-    return (
-        type(obj) is dict
-        and obj.keys() <= _LINK_KEYS
-        and _is_id(obj.get("source"))
-        and _is_id(obj.get("target"))
-        and _is_id(obj.get("relation"))
-        and ("id" not in obj or _is_id(obj["id"]))
-        and ("attributes" not in obj or _valid_attributes(obj["attributes"]))
-    )
+def _required(items: list[dict], key: str) -> list[Any] | None:
+    try:
+        return list(map(itemgetter(key), items))
+    except KeyError:
+        return None
 
 
 def _valid_top(document: Any) -> bool:
@@ -220,13 +251,66 @@ def _valid_top(document: Any) -> bool:
     )
 
 
+def _element_columns(elements: list[Any]) -> tuple[list[str], list[str]] | None:
+    """The id and kind columns, if the elements pass the checks that need no codes.
+
+    Ids, kinds and parents are checked on the distinct values :class:`ModelArrays`
+    collects anyway (see :func:`_codes_valid`); here: item shape, keys, optional strings
+    (a parent present must not be null) and attributes.
+    """
+    keys = _keys(elements, _ELEMENT_KEYS)
+    if keys is None:
+        return None
+    ids, kinds = _required(elements, "id"), _required(elements, "kind")
+    if ids is None or kinds is None:
+        return None
+    if not (
+        _optional(elements, keys, "name", 0, _SHORT_MAX)
+        and _optional(elements, keys, "text", 0, _LONG_MAX)
+        and None not in _present(elements, "parent", keys)
+        and _valid_attribute_maps(_present(elements, "attributes", keys))
+    ):
+        return None
+    return ids, kinds
+
+
+def _link_columns(links: list[Any]) -> tuple[list[str], list[str], list[str]] | None:
+    """The end and relation columns, if the links pass the checks that need no codes."""
+    keys = _keys(links, _LINK_KEYS)
+    if keys is None:
+        return None
+    ends = [_required(links, key) for key in ("source", "target", "relation")]
+    if any(column is None for column in ends):
+        return None
+    # A null end would be coded as "no element" (as a null parent is) and so escape
+    # _codes_valid; the schema requires a string.
+    if any(None in column for column in ends):  # type: ignore[operator]
+        return None
+    if not (
+        _optional(links, keys, "id", 1, _ID_MAX)
+        and _valid_attribute_maps(_present(links, "attributes", keys))
+    ):
+        return None
+    return ends[0], ends[1], ends[2]  # type: ignore[return-value]
+
+
+def _codes_valid(arrays: ModelArrays) -> bool:
+    """Ids, kinds, parents, link ends and relations are identifiers (1 to 1000 characters).
+
+    Checked on distinct values: ``names`` holds every distinct element id and every
+    other name a parent or a link end uses, ``kind_names`` and ``rel_names`` the
+    distinct kinds and relations. A value that equals a checked string is itself one.
+    """
+    return (
+        _strings(arrays.names, 1, _ID_MAX)
+        and _strings(arrays.kind_names, 1, _ID_MAX)
+        and _strings(arrays.rel_names, 1, _ID_MAX)
+    )
+
+
 def fast_valid(document: Any) -> bool:
     """True when ``document`` satisfies the thread schema (without running jsonschema)."""
-    return (
-        _valid_top(document)
-        and all(_valid_element(e) for e in document["elements"])
-        and all(_valid_link(x) for x in document["links"])
-    )
+    return _ThreadColumns.build(document, b"", "<document>") is not None
 
 
 # --- error reporting -----------------------------------------------------------------
@@ -304,6 +388,21 @@ def parse(data: bytes, origin: str) -> Model:
         Not UTF-8, not JSON (with line and column), or not valid against the schema
         (every violation, with line and JSON path).
     """
+    with collection_paused():
+        text = _decode_text(data, origin)
+        try:
+            document = _DECODER.decode(text)
+        except (ValueError, RecursionError):
+            document = None  # decode again item by item for the located message
+        del text
+        columns = None if document is None else _ThreadColumns.build(document, data, origin)
+    if columns is None:
+        return _parse_slowly(data, origin)
+    return Model.from_columns(columns, meta=document.get("model"), origin=origin, arrays=columns.arrays)
+
+
+def _parse_slowly(data: bytes, origin: str) -> Model:
+    """Decode item by item, knowing every item's line; report what is wrong."""
     text = _decode_text(data, origin)
     positions = _Positions()
     try:
@@ -317,36 +416,99 @@ def parse(data: bytes, origin: str) -> Model:
     lines = {key: _lines(text, starts) for key, starts in positions.items.items()}
     if not fast_valid(document):
         raise _schema_errors(document, origin, lines)
-    return _build(document, origin, lines)
+    columns = _ThreadColumns.build(document, data, origin)
+    assert columns is not None
+    columns.lines = lines
+    return Model.from_columns(columns, meta=document.get("model"), origin=origin, arrays=columns.arrays)
 
 
-def _build(document: dict[str, Any], origin: str, lines: dict[str, list[int]]) -> Model:
-    element_lines = lines["elements"] or [None] * len(document["elements"])
-    link_lines = lines["links"] or [None] * len(document["links"])
-    elements = [
-        Element(
-            e["id"],
-            e["kind"],
-            e.get("name"),
-            e.get("text"),
-            e.get("parent"),
-            e.get("attributes") or {},
-            Location(origin, line),
+class _ThreadColumns:
+    """The columns of a decoded, valid thread document (see :class:`tracecheck.model.Columns`).
+
+    Keeps the decoded item dictionaries; Element and Link objects are built from them
+    only on :meth:`materialise` (or one link at a time for a finding).
+    """
+
+    def __init__(self, document: dict[str, Any], data: bytes, origin: str,
+                 elements: tuple[list[str], list[str]], links: tuple[list[str], list[str], list[str]]) -> None:
+        self._element_items: list[dict[str, Any]] = document["elements"]
+        self._link_items: list[dict[str, Any]] = document["links"]
+        self.element_ids, self.element_kinds = elements
+        self.element_parents = list(map(dict.get, self._element_items, repeat("parent")))
+        self.link_sources, self.link_targets, self.link_relations = links
+        self._data: bytes | None = data
+        self._origin = origin
+        self.lines: dict[str, list[int]] | None = None
+        self.arrays: ModelArrays | None = None
+
+    @classmethod
+    def build(cls, document: Any, data: bytes, origin: str) -> _ThreadColumns | None:
+        """The columns with their integer codes, or ``None`` when the document breaks the schema."""
+        if not _valid_top(document):
+            return None
+        elements = _element_columns(document["elements"])
+        links = None if elements is None else _link_columns(document["links"])
+        if elements is None or links is None:
+            return None
+        columns = cls(document, data, origin, elements, links)
+        try:
+            columns.arrays = ModelArrays(columns)
+        except TypeError:  # an unhashable id, kind, parent, end or relation
+            return None
+        if not _codes_valid(columns.arrays):
+            return None
+        if columns.arrays.n != len(columns.element_ids):
+            # Codes describe the first element of each id; check the later copies too.
+            parents = [p for p in columns.element_parents if p is not None]
+            if not (_strings(columns.element_kinds, 1, _ID_MAX) and _strings(parents, 1, _ID_MAX)):
+                return None
+        return columns
+
+    def _lines(self) -> dict[str, list[int]]:
+        if self.lines is None:
+            from tracecheck.formats.json_lines import item_lines
+
+            data = self._data or b""
+            if data.startswith(b"\xef\xbb\xbf"):
+                data = data[3:]
+            counts = {"elements": len(self._element_items), "links": len(self._link_items)}
+            self.lines = item_lines(data, counts)
+            if self.lines is None:  # the byte scan could not vouch: decode item by item
+                text = _decode_text(data, self._origin)
+                positions = _Positions()
+                _decode_document(text, positions)
+                self.lines = {key: _lines(text, starts) for key, starts in positions.items.items()}
+            self._data = None
+        return self.lines
+
+    def element_attributes(self, index: int) -> Mapping[str, Any]:
+        return self._element_items[index].get("attributes") or {}
+
+    def element_location(self, index: int) -> Location:
+        return Location(self._origin, self._lines()["elements"][index])
+
+    def link_location(self, index: int) -> Location:
+        return Location(self._origin, self._lines()["links"][index])
+
+    def link(self, index: int) -> Link:
+        x = self._link_items[index]
+        return Link(x["source"], x["target"], x["relation"], x.get("id"),
+                    x.get("attributes") or {}, self.link_location(index))
+
+    def materialise(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]:
+        lines = self._lines()
+        origin = self._origin
+        elements = tuple(
+            Element(e["id"], e["kind"], e.get("name"), e.get("text"), e.get("parent"),
+                    e.get("attributes") or {}, Location(origin, line))
+            for e, line in zip(self._element_items, lines["elements"], strict=True)
         )
-        for e, line in zip(document["elements"], element_lines, strict=True)
-    ]
-    links = [
-        Link(
-            x["source"],
-            x["target"],
-            x["relation"],
-            x.get("id"),
-            x.get("attributes") or {},
-            Location(origin, line),
+        links = tuple(
+            Link(x["source"], x["target"], x["relation"], x.get("id"),
+                 x.get("attributes") or {}, Location(origin, line))
+            for x, line in zip(self._link_items, lines["links"], strict=True)
         )
-        for x, line in zip(document["links"], link_lines, strict=True)
-    ]
-    return Model(elements, links, meta=document.get("model"), origin=origin)
+        return elements, links
 
 
 def to_document(model: Model) -> dict[str, Any]:

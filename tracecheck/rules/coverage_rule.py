@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from tracecheck.coverage import evaluate
+from tracecheck.coverage import evaluate_codes
 from tracecheck.rules import Hit, rule
 from tracecheck.rules.engine import RuleContext
 
@@ -37,14 +37,14 @@ def _need(declaration) -> str:
     template="{id} ({kind}) is not covered by {declaration}: {need}",
 )
 def coverage(context: RuleContext) -> Iterator[Hit]:
-    by_id = context.model.by_id
+    arrays = context.arrays
     for declaration in context.config.declarations:
-        result = evaluate(context.model, declaration)
+        _, uncovered, _ = evaluate_codes(context.model, declaration)
         need = _need(declaration)
-        for element_id in result.uncovered:
+        for element_id in sorted(arrays.names[c] for c in uncovered.tolist()):
             args = {
                 "id": element_id,
-                "kind": by_id[element_id].kind,
+                "kind": arrays.kind_names[arrays.kind[arrays.position[element_id]]],
                 "declaration": declaration.name,
                 "need": need,
             }

@@ -13,11 +13,14 @@ import hashlib
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from functools import cached_property
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from tracecheck.config import Config
 from tracecheck.model import Location, Model
 from tracecheck.rules import Hit, RuleInfo, rules
+
+if TYPE_CHECKING:
+    from tracecheck.arrays import ModelArrays
 
 __all__ = ["Finding", "RuleContext", "run_rules", "fingerprint", "sort_key", "make_finding"]
 
@@ -55,12 +58,21 @@ class Finding:
 
 
 class RuleContext:
-    """What a rule may read: the model, the configuration, and shared derived indexes."""
+    """What a rule may read: the model, the configuration, and shared derived indexes.
+
+    The built-in rules read ``arrays``; ``ids`` and ``distinct_links`` stay for rules
+    that prefer strings and objects (they materialise the model's objects).
+    """
 
     def __init__(self, model: Model, config: Config) -> None:
         self.model = model
         self.config = config
         self.metamodel = config.metamodel
+
+    @property
+    def arrays(self) -> ModelArrays:
+        """Integer-coded columns of the model (see :mod:`tracecheck.arrays`)."""
+        return self.model.arrays
 
     @cached_property
     def ids(self) -> frozenset[str]:
@@ -109,8 +121,7 @@ def make_finding(info: RuleInfo, hit: Hit, model: Model, severity: str) -> Findi
     if location is None and hit.link is not None:
         location = hit.link.location
     if location is None and hit.elements:
-        element = model.by_id.get(hit.elements[0])
-        location = element.location if element else None
+        location = model.location_of(hit.elements[0])
     relation = hit.relation or (hit.link.relation if hit.link is not None else None)
     return Finding(
         rule=info.id,

@@ -1,8 +1,16 @@
-"""Structural rules: identifiers, link ends, kinds, relations, attributes."""
+"""Structural rules: identifiers, link ends, kinds, relations, attributes.
+
+Each rule finds its subjects with vectorised masks over ``context.arrays`` (integer
+codes, see :mod:`tracecheck.arrays`) and only then touches strings and objects, for the
+few items it reports. Hits come in the order a plain loop over the model would give
+(file order of elements, first-seen order of distinct links).
+"""
 
 from __future__ import annotations
 
 from collections.abc import Iterator
+
+import numpy as np
 
 from tracecheck.rules import Hit, rule
 from tracecheck.rules.engine import RuleContext
@@ -29,6 +37,23 @@ def _lines(items) -> str:
     return ", ".join(lines) if lines else "unknown"
 
 
+def _triples(context: RuleContext, mask: np.ndarray) -> Iterator[tuple[int, str, str, str]]:
+    """(distinct triple number, source, target, relation) where ``mask`` holds."""
+    arrays = context.arrays
+    names, relations = arrays.names, arrays.rel_names
+    for triple in np.flatnonzero(mask).tolist():
+        index = int(arrays.triple_first[triple])
+        yield triple, names[arrays.src[index]], names[arrays.tgt[index]], relations[arrays.rel[index]]
+
+
+def _first_link(context: RuleContext, triple: int):
+    return context.model.columns.link(int(context.arrays.triple_first[triple]))
+
+
+def _per_triple(context: RuleContext, column: np.ndarray) -> np.ndarray:
+    return column[context.arrays.triple_first]
+
+
 @rule(
     "duplicate-id",
     severity="error",
@@ -39,13 +64,25 @@ def _lines(items) -> str:
     template="id {id!r} is used by {count} elements (lines {lines})",
 )
 def duplicate_id(context: RuleContext) -> Iterator[Hit]:
-    seen: dict[str, list] = {}
-    for element in context.model.elements:
-        seen.setdefault(element.id, []).append(element)
+    arrays, columns = context.arrays, context.model.columns
+    ids = columns.element_ids
+    if arrays.n == len(ids):
+        return
+    seen: dict[str, list[int]] = {}
+    for index, element_id in enumerate(ids):
+        seen.setdefault(element_id, []).append(index)
     for element_id, group in seen.items():
         if len(group) > 1:
-            args = {"id": element_id, "count": len(group), "lines": _lines(group)}
-            yield Hit((element_id,), args, location=group[1].location)
+            locations = [_Located(columns.element_location(i)) for i in group]
+            args = {"id": element_id, "count": len(group), "lines": _lines(locations)}
+            yield Hit((element_id,), args, location=locations[1].location)
+
+
+class _Located:
+    __slots__ = ("location",)
+
+    def __init__(self, location) -> None:
+        self.location = location
 
 
 @rule(
@@ -58,9 +95,11 @@ def duplicate_id(context: RuleContext) -> Iterator[Hit]:
     template="{source} {relation} {target}: {missing} does not exist",
 )
 def dangling_link(context: RuleContext) -> Iterator[Hit]:
-    ids = context.ids
-    for (source, target, relation), group in context.distinct_links.items():
-        missing = [end for end in dict.fromkeys((source, target)) if end not in ids]
+    arrays = context.arrays
+    n = arrays.n
+    mask = (_per_triple(context, arrays.src) >= n) | (_per_triple(context, arrays.tgt) >= n)
+    for triple, source, target, relation in _triples(context, mask):
+        missing = [end for end in dict.fromkeys((source, target)) if end not in arrays.position]
         if missing:
             args = {
                 "source": source,
@@ -68,7 +107,7 @@ def dangling_link(context: RuleContext) -> Iterator[Hit]:
                 "relation": relation,
                 "missing": " and ".join(repr(m) for m in missing),
             }
-            yield Hit(_ends(source, target), args, link=group[0])
+            yield Hit(_ends(source, target), args, link=_first_link(context, triple))
 
 
 @rule(
@@ -81,10 +120,11 @@ def dangling_link(context: RuleContext) -> Iterator[Hit]:
     template="{id}: parent {parent!r} does not exist",
 )
 def dangling_parent(context: RuleContext) -> Iterator[Hit]:
-    ids = context.ids
-    for element in context.model.by_id.values():
-        if element.parent is not None and element.parent not in ids:
-            yield Hit((element.id,), {"id": element.id, "parent": element.parent})
+    arrays = context.arrays
+    names = arrays.names
+    for code in np.flatnonzero(arrays.parent >= arrays.n).tolist():
+        element_id = names[code]
+        yield Hit((element_id,), {"id": element_id, "parent": names[arrays.parent[code]]})
 
 
 @rule(
@@ -97,9 +137,11 @@ def dangling_parent(context: RuleContext) -> Iterator[Hit]:
     template="{source} {relation} itself",
 )
 def self_link(context: RuleContext) -> Iterator[Hit]:
-    for (source, target, relation), group in context.distinct_links.items():
-        if source == target:
-            yield Hit((source,), {"source": source, "relation": relation}, link=group[0])
+    arrays = context.arrays
+    mask = _per_triple(context, arrays.src) == _per_triple(context, arrays.tgt)
+    for triple, source, _, relation in _triples(context, mask):
+        args = {"source": source, "relation": relation}
+        yield Hit((source,), args, link=_first_link(context, triple))
 
 
 @rule(
@@ -112,7 +154,9 @@ def self_link(context: RuleContext) -> Iterator[Hit]:
     template="{source} {relation} {target} appears {count} times (lines {lines})",
 )
 def duplicate_link(context: RuleContext) -> Iterator[Hit]:
-    for (source, target, relation), group in context.distinct_links.items():
+    columns = context.model.columns
+    for triple, source, target, relation in _triples(context, context.arrays.triple_count > 1):
+        group = [columns.link(i) for i in context.arrays.triple_links(triple)]
         if len(group) > 1:
             args = {
                 "source": source,
@@ -134,11 +178,15 @@ def duplicate_link(context: RuleContext) -> Iterator[Hit]:
     template="{id}: unknown kind {kind!r} (known: {known})",
 )
 def unknown_kind(context: RuleContext) -> Iterator[Hit]:
+    arrays = context.arrays
     kinds = context.metamodel.kinds
     known = ", ".join(sorted(kinds))
-    for element in context.model.by_id.values():
-        if element.kind not in kinds:
-            yield Hit((element.id,), {"id": element.id, "kind": element.kind, "known": known})
+    unknown = [code for code, kind in enumerate(arrays.kind_names) if kind not in kinds]
+    if not unknown:
+        return
+    for code in np.flatnonzero(np.isin(arrays.kind, unknown)).tolist():
+        element_id, kind = arrays.names[code], arrays.kind_names[arrays.kind[code]]
+        yield Hit((element_id,), {"id": element_id, "kind": kind, "known": known})
 
 
 @rule(
@@ -151,12 +199,16 @@ def unknown_kind(context: RuleContext) -> Iterator[Hit]:
     template="{source} {relation} {target}: unknown relation {relation!r} (known: {known})",
 )
 def unknown_relation(context: RuleContext) -> Iterator[Hit]:
+    arrays = context.arrays
     relations = context.metamodel.relations
     known = ", ".join(sorted(relations))
-    for (source, target, relation), group in context.distinct_links.items():
-        if relation not in relations:
-            args = {"source": source, "target": target, "relation": relation, "known": known}
-            yield Hit(_ends(source, target), args, link=group[0])
+    unknown = [code for code, name in enumerate(arrays.rel_names) if name not in relations]
+    if not unknown:
+        return
+    mask = np.isin(_per_triple(context, arrays.rel), unknown)
+    for triple, source, target, relation in _triples(context, mask):
+        args = {"source": source, "target": target, "relation": relation, "known": known}
+        yield Hit(_ends(source, target), args, link=_first_link(context, triple))
 
 
 @rule(
@@ -170,13 +222,26 @@ def unknown_relation(context: RuleContext) -> Iterator[Hit]:
     "{relation} joins {allowed}",
 )
 def relation_endpoints(context: RuleContext) -> Iterator[Hit]:
+    arrays = context.arrays
     relations = context.metamodel.relations
-    by_id = context.model.by_id
-    for (source, target, relation), group in context.distinct_links.items():
-        rule_ = relations.get(relation)
-        if rule_ is None or source not in by_id or target not in by_id:
-            continue
-        source_kind, target_kind = by_id[source].kind, by_id[target].kind
+    kinds = arrays.kind_names
+    if not kinds or not arrays.rel_names:
+        return
+    # allowed[relation code, source kind code, target kind code]; unknown relations allow
+    # everything here (they are unknown-relation findings, not endpoint findings).
+    allowed = np.ones((len(arrays.rel_names), len(kinds), len(kinds)), dtype=bool)
+    for code, name in enumerate(arrays.rel_names):
+        rule_ = relations.get(name)
+        if rule_ is not None:
+            allowed[code] = [[rule_.allows(a, b) for b in kinds] for a in kinds]
+    src, tgt = _per_triple(context, arrays.src), _per_triple(context, arrays.tgt)
+    both = (src < arrays.n) & (tgt < arrays.n)
+    src, tgt = np.where(both, src, 0), np.where(both, tgt, 0)
+    mask = both & ~allowed[_per_triple(context, arrays.rel), arrays.kind[src], arrays.kind[tgt]]
+    for triple, source, target, relation in _triples(context, mask):
+        rule_ = relations[relation]
+        source_kind = kinds[arrays.kind[arrays.position[source]]]
+        target_kind = kinds[arrays.kind[arrays.position[target]]]
         if not rule_.allows(source_kind, target_kind):
             args = {
                 "source": source,
@@ -186,7 +251,7 @@ def relation_endpoints(context: RuleContext) -> Iterator[Hit]:
                 "target_kind": target_kind,
                 "allowed": _allowed(rule_),
             }
-            yield Hit(_ends(source, target), args, link=group[0])
+            yield Hit(_ends(source, target), args, link=_first_link(context, triple))
 
 
 def _allowed(rule_) -> str:
@@ -213,10 +278,14 @@ def _absent(value) -> bool:
 )
 def missing_attribute(context: RuleContext) -> Iterator[Hit]:
     required = context.config.required_attributes
-    if not required:
+    arrays = context.arrays
+    codes = arrays.kind_codes(required)
+    if not codes:
         return
-    for element in context.model.by_id.values():
-        for attribute in required.get(element.kind, ()):
-            if _absent(element.attributes.get(attribute)):
-                args = {"id": element.id, "kind": element.kind, "attribute": attribute}
-                yield Hit((element.id,), args, key=(attribute,))
+    for code in np.flatnonzero(np.isin(arrays.kind, codes)).tolist():
+        element_id, kind = arrays.names[code], arrays.kind_names[arrays.kind[code]]
+        attributes = arrays.element_attributes(code)
+        for attribute in required[kind]:
+            if _absent(attributes.get(attribute)):
+                args = {"id": element_id, "kind": kind, "attribute": attribute}
+                yield Hit((element_id,), args, key=(attribute,))
