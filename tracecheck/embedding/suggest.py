@@ -22,11 +22,12 @@ from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass, field
 
 import numpy as np
-from scipy.optimize import minimize
 
 from tracecheck.embedding.graph import PairGraph, pair_graph
+from tracecheck.embedding.lbfgs import minimize_lbfgs
 from tracecheck.embedding.metrics import average_precision, roc_auc
 from tracecheck.embedding.objective import dense_objective, pair_objective, split
+from tracecheck.embedding.threads import one_blas_thread
 from tracecheck.model import Model
 
 __all__ = ["AllowedPair", "SuggestSettings", "Suggestion", "SuggestResult", "suggest"]
@@ -135,9 +136,8 @@ def _train(graph: PairGraph, src: np.ndarray, dst: np.ndarray, settings: Suggest
         objective, _ = pair_objective(n, k, all_keys // n, all_keys % n, sign, weight,
                                       loss="logistic", l2=settings.l2 * negatives.size / m)
     # A fixed small iteration count is the early stopping: long runs memorise the graph.
-    found = minimize(objective, theta, jac=True, method="L-BFGS-B",
-                     options={"maxiter": settings.max_iter, "maxcor": 20})
-    return split(found.x, n, k)
+    found = minimize_lbfgs(objective, theta, callback=lambda t: False, max_iter=settings.max_iter)
+    return split(found, n, k)
 
 
 def _sample_pairs(n: int, count: int, exclude: np.ndarray, rng: np.random.Generator) -> np.ndarray:
@@ -220,6 +220,7 @@ def _sigmoid(z: float) -> float:
     return float(0.5 * (1.0 + np.tanh(0.5 * z)))
 
 
+@one_blas_thread
 def suggest(
     model: Model,
     *,

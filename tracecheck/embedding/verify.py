@@ -11,6 +11,7 @@ import numpy as np
 from tracecheck.embedding.factors import Embedding, load
 from tracecheck.embedding.graph import pair_graph
 from tracecheck.embedding.scan import scan
+from tracecheck.embedding.threads import one_blas_thread
 from tracecheck.model import Model
 
 __all__ = ["LinkRef", "VerifyResult", "verify", "verify_file", "predicted_pairs"]
@@ -68,6 +69,7 @@ class VerifyResult:
         }
 
 
+@one_blas_thread
 def verify(
     model: Model,
     embedding: Embedding,
