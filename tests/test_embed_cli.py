@@ -218,3 +218,33 @@ def test_average_precision_by_its_definition():
     hits = np.cumsum(labels[order])
     brute = np.mean([hits[r] / (r + 1) for r in range(200) if labels[order][r]])
     assert average_precision(scores[labels], scores[~labels]) == pytest.approx(brute, abs=1e-12)
+
+
+def test_demo_step_shows_exactly_the_drift_between_two_stages(tmp_path):
+    # Oracle: plain set differences of the two stages' (source, target) pairs. The fit at
+    # detailed-design is exact, so verify at qualification must name exactly the pairs
+    # that appeared (missing) and those that went away (spurious).
+    import io
+
+    from tracecheck.demo import build_repository
+    from tracecheck.demo.stages import stage_bytes
+    from tracecheck.embedding.demo_step import embed_demo_step
+
+    demo = build_repository(tmp_path / "repo")
+    demo.reports.mkdir()
+    out = io.StringIO()
+    written = embed_demo_step(demo, out, None)
+    assert written == ["embedding-detailed-design.npz", "embed-verify.json", "embed-verify.md", "embed-suggest.md"]
+    document = json.loads((demo.reports / "embed-verify.json").read_text())
+
+    def pairs(stage):
+        model = read_model(stage_bytes(stage), stage)
+        ids = set(model.by_id)
+        return {(link.source, link.target) for link in model.links
+                if link.source != link.target and {link.source, link.target} <= ids}
+
+    before, after = pairs("detailed-design"), pairs("qualification")
+    assert document["exact"] is False
+    assert {(m["source"], m["target"]) for m in document["missing"]} == after - before
+    assert {(s["source"], s["target"]) for s in document["spurious"]} == before - after
+    assert "NOT EXACT" in out.getvalue() and "for a human reviewer" in out.getvalue()

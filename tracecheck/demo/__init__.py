@@ -136,3 +136,7 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
 # Later capabilities (diff, gate, coverage, history, formats, embedding) add a step here:
 # a function (demo, out, options) -> list of report file names it wrote.
 _EXTRA_STEPS: list = []
+
+from tracecheck.embedding.demo_step import embed_demo_step  # noqa: E402  (light: imports on call)
+
+_EXTRA_STEPS.append(embed_demo_step)

@@ -249,8 +249,10 @@ def suggest(
     Returns
     -------
     SuggestResult
-        Scores are probabilities ``sigma(x_i . y_j)``; evaluation is ``None`` when the
-        model has too few links to hold any out.
+        Scores are ``sigma(x_i . y_j)`` of a class-weighted fit (links weigh as much as
+        all non-links together), so they rank pairs but are not calibrated
+        probabilities; evaluation is ``None`` when the model has too few links to hold
+        any out.
 
     Examples
     --------

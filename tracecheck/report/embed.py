@@ -28,7 +28,8 @@ UPPER_BOUND = (
 )
 SUGGESTION_NOTE = (
     "Suggestions for a human reviewer, ranked by a learned model; none is applied to the "
-    "model. A high score means the link resembles existing ones, not that it is correct."
+    "model. A score ranks pairs (it is not a calibrated probability); a high one means the "
+    "link resembles existing ones, not that it is correct."
 )
 _LIST_LIMIT = 50  # text and markdown show this many links per list; json shows all
 
