@@ -79,6 +79,10 @@ class FitSettings:
     rounds, round_iter
         Cap on active-set rounds (full passes) per attempt, and on the iterations of
         one round.
+    doubling_rounds
+        Cap on active-set rounds of an attempt in the doubling phase: failed low
+        dimensions dominated the search time, and a dimension that is only exact after
+        long training is found again by bisection, which has the full budget.
     max_seconds
         Wall-clock bound on the whole fit (``None``: none). The best fit so far is kept.
     """
@@ -94,6 +98,7 @@ class FitSettings:
     dense_limit: int = 400
     negatives_per_link: int = 5
     rounds: int = 100
+    doubling_rounds: int = 4
     round_iter: int = 60
     implicit: float = 1.0
     init_scale: float = 0.1
@@ -238,11 +243,16 @@ class _Problem:
 
         return _Monitor(errors_at, self.settings.patience, self.deadline, report)
 
-    def attempt(self, k: int, theta: np.ndarray, label: str) -> tuple[np.ndarray, int, int, str]:
-        """Train from ``theta``; return (best theta, errors, iterations, why it stopped)."""
+    def attempt(self, k: int, theta: np.ndarray, label: str,
+                rounds: int | None = None) -> tuple[np.ndarray, int, int, str]:
+        """Train from ``theta``; return (best theta, errors, iterations, why it stopped).
+
+        ``rounds`` caps the active-set rounds (the doubling phase only needs to know
+        whether a dimension is easily exact; bisection gives the full budget).
+        """
         if self.dense:
             return self._dense(k, theta, label)
-        return self._active(k, theta, label)
+        return self._active(k, theta, label, rounds or self.settings.rounds)
 
     def _dense(self, k, theta, label):
         n = self.graph.n
@@ -262,20 +272,19 @@ class _Problem:
         _optimise(objective, theta, monitor, self.settings)
         return monitor.best_theta, monitor.best, monitor.iterations, monitor.stopped
 
-    def _active(self, k, theta, label):
+    def _active(self, k, theta, label, rounds):
         """Short L-BFGS runs on a growing active set, each followed by a full blockwise pass.
 
         Stops when a pass certifies every pair, or fails when the wrong-pair count of the
-        passes stops falling (by 10 % over three rounds), or at the iteration cap.
+        passes has not fallen 10 % below the best for two passes, or at the iteration cap.
         """
         graph, n, settings = self.graph, self.graph.n, self.settings
         rng = np.random.default_rng([settings.seed, k, 7])
         negatives = _sample_non_links(graph, settings.negatives_per_link * graph.m, rng)
         rows = max(1, min(n, BLOCK_BYTES // max(1, 8 * n)))
         blocks = -(-n // rows)
-        history: list[int] = []
-        iterations, best = 0, (graph.m + 1, theta)
-        for round_number in range(1, settings.rounds + 1):
+        iterations, best, since = 0, (-1, theta), 0  # best: (errors of a full pass, factors)
+        for round_number in range(1, rounds + 1):
             src, dst, sign, weight = _active_pairs(graph, negatives)
             implicit = settings.implicit * negatives.size / (n * n) if round_number == 1 else 0.0
             objective, state = pair_objective(n, k, src, dst, sign, weight, loss=settings.loss,
@@ -294,17 +303,17 @@ class _Problem:
             full = scan(x, y, graph.src, graph.dst, threshold=0.0, margin=certification_margin(x, y),
                         bound=HINGE_MARGIN, limit=per_block, rng=rng)
             errors = int(full.missing_src.size + full.spurious_count)
-            if errors < best[0]:
+            since = 0 if best[0] < 0 or errors < 0.9 * best[0] else since + 1
+            if best[0] < 0 or errors < best[0]:
                 best = (errors, theta)
             if full.exact:
                 return theta, 0, iterations, "exact"
             if self.deadline is not None and time.monotonic() > self.deadline:
                 return best[1], best[0], iterations, "time"
-            if len(history) >= 3 and errors > 0.9 * min(history[-3:]):
+            if since >= 2:  # two full passes without 10 % fewer wrong pairs than the best
                 return best[1], best[0], iterations, "stalled"
             if iterations >= settings.max_iter:
                 return best[1], best[0], iterations, "iterations"
-            history.append(errors)
             negatives = np.union1d(negatives, full.spurious_src * n + full.spurious_dst)
         return best[1], best[0], iterations, "rounds"
 
@@ -369,7 +378,7 @@ class _Search:
         deadline = self.problem.deadline
         return deadline is not None and time.monotonic() > deadline
 
-    def at(self, k: int, starts: list[tuple[str, np.ndarray]]) -> bool:
+    def at(self, k: int, starts: list[tuple[str, np.ndarray]], rounds: int | None = None) -> bool:
         """Try ``starts`` at dimension ``k`` until one is exact."""
         for label, theta in starts:
             if (k, label) in self.tried:
@@ -377,7 +386,7 @@ class _Search:
             self.tried.add((k, label))
             if self.out_of_time:
                 return False
-            theta, errors, iterations, stopped = self.problem.attempt(k, theta, f"k={k} {label}")
+            theta, errors, iterations, stopped = self.problem.attempt(k, theta, f"k={k} {label}", rounds)
             self.attempts.append(Attempt(k, label, errors == 0, errors, iterations, stopped))
             if self.best is None or (errors, k) < self.best[:2]:
                 self.best = (errors, k, theta)
@@ -471,7 +480,7 @@ def _search_dimension(search: _Search, settings: FitSettings) -> None:
     low, k = 0, 1
     limit = min(settings.max_dimension, max(1, search.problem.graph.n))
     while True:
-        if search.at(k, search.random_starts(k, 1)):
+        if search.at(k, search.random_starts(k, 1), settings.doubling_rounds):
             break
         if search.failed >= settings.max_failed or search.out_of_time or k >= limit:
             return
