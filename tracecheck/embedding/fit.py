@@ -23,8 +23,6 @@ S. Chanpuriya, C. Musco, K. Sotiropoulos, C. E. Tsourakakis, "Node Embeddings an
 Low-Rank Representations of Complex Networks", NeurIPS 2020.
 R. H. Byrd, P. Lu, J. Nocedal, C. Zhu, "A Limited Memory Algorithm for Bound Constrained
 Optimization", SIAM J. Sci. Comput. 16(5), 1995 (L-BFGS-B, scipy's; a benchmark baseline).
-D. P. Kingma, J. Ba, "Adam: A Method for Stochastic Optimization", ICLR 2015 (the
-first-order baseline optimiser, kept for the benchmark).
 """
 
 from __future__ import annotations
@@ -60,8 +58,8 @@ class FitSettings:
     seed
         Base seed; attempt ``r`` at dimension ``k`` starts from ``default_rng([seed, k, r])``.
     optimizer
-        ``"lbfgs"`` (:mod:`tracecheck.embedding.lbfgs`, numpy), ``"scipy-lbfgsb"``
-        (scipy's L-BFGS-B) or ``"adam"``; the last two are kept as benchmark baselines.
+        ``"lbfgs"`` (:mod:`tracecheck.embedding.lbfgs`, numpy) or ``"scipy-lbfgsb"``
+        (scipy's L-BFGS-B, the benchmark's baseline).
     max_iter
         Iteration cap of one attempt (of one active-set round).
     patience
@@ -135,10 +133,6 @@ class FitOutcome:
     timed_out: bool = False
 
 
-class _Stop(Exception):
-    pass
-
-
 @dataclass
 class _Monitor:
     """Counts errors at each iterate; decides when an attempt stops."""
@@ -181,8 +175,6 @@ def _optimise(objective, theta: np.ndarray, monitor: _Monitor, settings: FitSett
         minimize_lbfgs(objective, theta, callback=monitor, max_iter=max_iter)
     elif settings.optimizer == "scipy-lbfgsb":
         _lbfgsb(objective, theta, monitor, max_iter)
-    elif settings.optimizer == "adam":
-        _adam(objective, theta, monitor, max_iter)
     else:
         raise ValueError(f"unknown optimizer {settings.optimizer!r}")
     if monitor.best_theta is None:  # not one iteration: judge the start
@@ -198,19 +190,6 @@ def _lbfgsb(objective, theta, monitor, max_iter) -> None:
         objective, theta, jac=True, method="L-BFGS-B", callback=callback,
         options={"maxiter": max_iter, "maxfun": 2 * max_iter, "ftol": 0.0, "gtol": 0.0, "maxcor": 20},
     )
-
-
-def _adam(objective, theta, monitor, max_iter, rate=0.02, beta1=0.9, beta2=0.999) -> None:
-    theta = theta.copy()
-    first = np.zeros_like(theta)
-    second = np.zeros_like(theta)
-    for step in range(1, max_iter + 1):
-        _, grad = objective(theta)
-        if monitor(theta):
-            return
-        first = beta1 * first + (1 - beta1) * grad
-        second = beta2 * second + (1 - beta2) * grad * grad
-        theta -= rate * (first / (1 - beta1**step)) / (np.sqrt(second / (1 - beta2**step)) + 1e-12)
 
 
 def _logits_for(state, objective, theta: np.ndarray) -> np.ndarray:

@@ -101,7 +101,8 @@ def scan(
     for start in range(0, n, rows):
         stop = min(n, start + rows)
         z = np.matmul(x[start:stop], yt, out=buffer[: stop - start])
-        z -= threshold
+        if threshold:  # a pass over the block saved in the usual case of threshold 0
+            z -= threshold
         r = src[indptr[start] : indptr[stop]] - start
         c = dst[indptr[start] : indptr[stop]]
         on_links = z[r, c]
