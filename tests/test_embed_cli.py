@@ -248,3 +248,14 @@ def test_demo_step_shows_exactly_the_drift_between_two_stages(tmp_path):
     assert {(m["source"], m["target"]) for m in document["missing"]} == after - before
     assert {(s["source"], s["target"]) for s in document["spurious"]} == before - after
     assert "NOT EXACT" in out.getvalue() and "for a human reviewer" in out.getvalue()
+
+
+def test_suggest_without_metamodel_restrictions_considers_every_pair(tmp_path):
+    # The karate thread has only traces_to links, which the default metamodel allows
+    # between any kinds: the evaluation must still run over all ordered pairs.
+    model = karate_thread(tmp_path / "karate.json")
+    document = json.loads(run("embed", "suggest", str(model), "--format", "json", "--top", "5").stdout)
+    assert document["evaluation"]["roc_auc"] is not None
+    assert len(document["likely_missing"]) == 5
+    friends = {(f"M{u:02d}", f"M{v:02d}") for u, v in nx.karate_club_graph().to_directed().edges}
+    assert not friends & {(s["source"], s["target"]) for s in document["likely_missing"]}

@@ -147,7 +147,9 @@ def run_suggest(
     loaded = load(spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
     chosen = _relations(loaded.model, relations)
     settings = SuggestSettings(dimension=dimension, holdout=holdout, seed=seed, top=top)
-    allowed = list(allowed_pairs(loaded.config.metamodel, chosen))
+    # A metamodel whose relations allow any kinds (or a thread of traces_to links only)
+    # restricts nothing: every ordered pair is then a candidate.
+    allowed = list(allowed_pairs(loaded.config.metamodel, chosen)) or None
     with progress("embed suggest", enabled=progress_enabled(options.quiet)) as update:
         result = suggest(loaded.model, allowed=allowed, relations=chosen, settings=settings, progress=update)
     emit(render("embed suggest", fmt, result, options), output, streams)

@@ -101,7 +101,7 @@ class FitSettings:
     dense_limit: int = 400
     negatives_per_link: int = 5
     rounds: int = 40
-    doubling_rounds: int = 4
+    doubling_rounds: int = 12
     round_iter: int = 60
     implicit: float = 1.0
     init_scale: float = 0.1
