@@ -392,3 +392,11 @@ def test_dimension_search_on_the_active_set_finds_an_exact_fit():
     assert_reproduces(result.outcome.embedding, graph)
     found = result.outcome.embedding.dimension
     assert any(a.dimension < found and not a.exact for a in result.outcome.attempts)
+
+
+def test_a_corrupted_archive_member_is_refused():
+    data = bytearray(dumps(sample_embedding()))
+    start = data.index(b"x.npy") + 40  # inside the deflated bytes of the factors
+    data[start:start + 16] = b"\xff" * 16
+    with pytest.raises(InputError, match="corrupt.npz"):
+        loads(bytes(data), "corrupt.npz")

@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import json
 import zipfile
+import zlib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -195,7 +196,7 @@ def loads(data: bytes, origin: str) -> Embedding:
             arrays = {key: archive[key] for key in _KEYS}
     except InputError:
         raise
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as error:
+    except (ValueError, OSError, EOFError, KeyError, zipfile.BadZipFile, zlib.error) as error:
         raise _refuse(origin, f"cannot be read as .npz: {error}") from None
     if _text(arrays, "format", origin) != FORMAT:
         raise _refuse(origin, f"format is {str(arrays['format'])!r}, expected {FORMAT!r}")

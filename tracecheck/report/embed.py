@@ -20,7 +20,8 @@ __all__ = ["CAUTION", "UPPER_BOUND", "SUGGESTION_NOTE"]
 
 CAUTION = (
     "This report supports and does not replace review by qualified people; tool "
-    "qualification under the applicable standard is the user's responsibility."
+    "qualification under the applicable standard is the user's responsibility; local codes "
+    "and licensed practice prevail."
 )
 UPPER_BOUND = (
     "The dimension found is an upper bound on the smallest exact dimension, not a proven "
