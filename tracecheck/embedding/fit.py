@@ -66,6 +66,8 @@ class FitSettings:
         An attempt is abandoned after this many iterations without 1 % fewer wrong pairs.
     restarts
         Random starts per dimension in bisection (and with ``--dim``).
+    active_start
+        First dimension of the doubling above ``dense_limit``.
     active_restarts
         The same above ``dense_limit``, where an attempt costs minutes: bisection then
         starts only from the truncated larger exact fit (on the synthetic 5k thread it
@@ -96,6 +98,7 @@ class FitSettings:
     patience: int = 150
     restarts: int = 2
     active_restarts: int = 0
+    active_start: int = 8
     max_failed: int = 10
     max_dimension: int = 256
     dense_limit: int = 400
@@ -460,9 +463,14 @@ def fit_graph(
 
 
 def _search_dimension(search: _Search, settings: FitSettings) -> None:
-    """Doubling from 1, then bisection between the last failure and the first success."""
-    low, k = 0, 1
+    """Doubling, then bisection between the last failure and the first success.
+
+    Doubling starts at 1 for dense problems and at ``active_start`` above the dense
+    limit, where dimensions 1, 2 and 4 never fitted a synthetic thread and each
+    failure cost minutes; bisection still explores below the start (from 0).
+    """
     limit = min(settings.max_dimension, max(1, search.problem.graph.n))
+    low, k = 0, 1 if search.problem.dense else min(limit, settings.active_start)
     while True:
         if search.at(k, search.random_starts(k, 1), settings.doubling_rounds):
             break
