@@ -217,7 +217,8 @@ def main() -> int:
         for r in fits:
             if r["optimizer"] == "lbfgs" and r["case"] in base:
                 print(f"{r['case']}: numpy L-BFGS / scipy L-BFGS-B search time = {r['seconds'] / base[r['case']]:.2f}")
-        print("* the --max-seconds bound ended the search; the best fit so far was kept.")
+        if any(r["timed_out"] for r in fits):
+            print("* the --max-seconds bound ended the search; the best fit so far was kept.")
     if _sizes(args.verify):
         print()
         with tempfile.TemporaryDirectory() as tmp:
