@@ -7,8 +7,8 @@ because its iterations were slow here: 28 ms at 20 000 parameters with OpenBLAS'
 thread pool on a shared machine, ten times the cost with one thread. The real cause
 was the thread pool, now held to one thread (:mod:`tracecheck.embedding.threads`),
 and with that fixed both optimisers cost about the same (``benchmarks/embedding.py``
-runs scipy's as the baseline: 22.1 s against 19.6 s for the 1k synthetic search,
-within the noise of a busy machine). This one is kept because it is short,
+runs scipy's as the baseline: ours took 1.13 and 1.06 times as long for the 1k
+synthetic search in two runs, within the noise of a busy machine). This one is kept because it is short,
 deterministic, uses elementwise numpy only, and the tests' recorded dimensions were
 found with it.
 
