@@ -392,6 +392,95 @@ def history(ctx: click.Context, path: str, fmt: str, output: str | None, config_
     )
 
 
+@cli.group()
+def embed() -> None:
+    """Learned node embedding of the thread: fit it, verify it still reproduces the
+    model exactly, and rank likely-missing links for review."""
+
+
+@embed.command("fit")
+@click.argument("model")
+@click.option("-o", "--output", "embedding", required=True, type=click.Path(dir_okay=False),
+              help="Write the embedding to this .npz file (atomically).")
+@click.option("--dim", "dimension", type=int, default=None,
+              help="Fit this dimension and report its residual errors (default: search the smallest exact one).")
+@click.option("--relation", "relations", multiple=True,
+              help="Fit only links of this relation (repeatable; default: the union of all relations).")
+@click.option("--max-seconds", type=float, default=None, help="Stop training after this long; the best fit so far is kept.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Base seed of the random starts.")
+@click.option("--format", "fmt", type=click.Choice(["text", "json", "markdown"]), default="text", show_default=True,
+              help="Format of the report on stdout.")
+@click.option("--config", "config_option", type=click.Path(dir_okay=False), default=None,
+              help="Configuration file (default: tracecheck.toml or pyproject.toml found upwards from the model).")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.option("--quiet", is_flag=True, help="Print only the verdict; no progress bar.")
+@click.option("--no-color", is_flag=True, help="No colour (also when NO_COLOR is set).")
+@click.option("--debug", is_flag=True, hidden=True)
+@click.pass_context
+def embed_fit(ctx: click.Context, model: str, embedding: str, dimension: int | None, relations: tuple[str, ...],
+              max_seconds: float | None, seed: int, fmt: str, config_option: str | None, input_format: str | None,
+              quiet: bool, no_color: bool, debug: bool) -> int:
+    """Fit an embedding whose decoder reproduces MODEL's links; exit 0 if exact, else 1.
+
+    Without --dim the smallest exact dimension the search finds is kept: an upper bound,
+    not a proven minimum.
+    """
+    from tracecheck.commands import embed as command
+
+    return command.run_fit(
+        model, embedding, dimension=dimension, relations=relations, seed=seed, max_seconds=max_seconds,
+        fmt=fmt, config_option=config_option, input_format=input_format,
+        options=_render_options(ctx, quiet, no_color, None),
+    )
+
+
+@embed.command("verify")
+@click.argument("model")
+@click.option("--embedding", "embedding", required=True, type=click.Path(dir_okay=False),
+              help="The .npz written by 'embed fit'.")
+@_common(["text", "json", "markdown"])
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def embed_verify(ctx: click.Context, model: str, embedding: str, fmt: str, output: str | None,
+                 config_option: str | None, quiet: bool, no_color: bool, debug: bool,
+                 input_format: str | None) -> int:
+    """Exit 0 if EMBEDDING still reproduces MODEL exactly, else 1 with the links it
+    misses or invents and the elements it does not know."""
+    from tracecheck.commands import embed as command
+
+    return command.run_verify(
+        model, embedding, fmt=fmt, output=output, config_option=config_option, input_format=input_format,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
+@embed.command("suggest")
+@click.argument("model")
+@_common(["text", "json", "markdown"])
+@click.option("--relation", "relations", multiple=True,
+              help="Consider only this relation (repeatable; default: every relation the metamodel restricts).")
+@click.option("--dim", "dimension", type=int, default=8, show_default=True, help="Embedding dimension.")
+@click.option("--holdout", type=float, default=0.1, show_default=True,
+              help="Fraction of links held out for the evaluation.")
+@click.option("--top", type=int, default=20, show_default=True, help="Length of each ranked list.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Seed of the hold-out split and training.")
+@click.option("--input-format", default=None, help="Read MODEL as this format instead of detecting it.")
+@click.pass_context
+def embed_suggest(ctx: click.Context, model: str, fmt: str, output: str | None, config_option: str | None,
+                  quiet: bool, no_color: bool, debug: bool, relations: tuple[str, ...], dimension: int,
+                  holdout: float, top: int, seed: int, input_format: str | None) -> int:
+    """Rank likely-missing links (between kinds the metamodel allows) and the least
+    plausible existing ones, with a held-out evaluation. Suggestions for a human
+    reviewer; nothing is applied to the model."""
+    from tracecheck.commands import embed as command
+
+    return command.run_suggest(
+        model, relations=relations, dimension=dimension, holdout=holdout, top=top, seed=seed, fmt=fmt,
+        output=output, config_option=config_option, input_format=input_format,
+        options=_render_options(ctx, quiet, no_color, output),
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     return cli.main(argv, standalone_mode=False)
 

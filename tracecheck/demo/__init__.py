@@ -144,11 +144,12 @@ _EXTRA_STEPS: list = []
 
 # The order is the story a reviewer follows: what changed since the last stage, how well
 # the latest stage is covered, whether the proposed change may merge, how the thread
-# evolved, and the same stage in the open interchange formats.
+# evolved, the same stage in the open interchange formats, and the embedding check.
 from tracecheck.commands.coverage import demo_step as _coverage_step  # noqa: E402
 from tracecheck.demo.formats_step import formats_step  # noqa: E402
 from tracecheck.demo.history import history_step  # noqa: E402
 from tracecheck.diff.demo_step import diff_step  # noqa: E402
+from tracecheck.embedding.demo_step import embed_demo_step  # noqa: E402  (light: imports on call)
 
 
 def _gate_step(demo, out, options) -> list[str]:
@@ -157,4 +158,5 @@ def _gate_step(demo, out, options) -> list[str]:
     return gate_step(demo, out, options)
 
 
-_EXTRA_STEPS += [diff_step, _coverage_step, _gate_step, history_step, formats_step]
+_EXTRA_STEPS += [diff_step, _coverage_step, _gate_step, history_step, formats_step,
+                 embed_demo_step]

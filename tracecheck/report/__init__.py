@@ -28,7 +28,7 @@ class Renderer(Protocol):
 _RENDERERS: dict[tuple[str, str], Renderer] = {}
 
 # Modules under tracecheck/report/ that register renderers on import.
-_BUILTIN = ["check", "diff", "coverage", "coverage_html", "review", "ci", "gate", "history"]
+_BUILTIN = ["check", "diff", "coverage", "coverage_html", "review", "ci", "gate", "history", "embed"]
 
 
 def renderer(command: str, fmt: str) -> Callable[[Renderer], Renderer]:
