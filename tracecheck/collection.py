@@ -5,7 +5,8 @@ walks the young ones every few hundred allocations and the old ones again and ag
 as they pile up, to find nothing: a decoded document, the model columns and the
 integer arrays hold no reference cycles. Paused for the whole of a command, the
 collector never walks them at all, and reference counting frees them when the
-command drops the model.
+command drops the model. (For the GraphML and ReqIF readers the collector's rescans
+cost about a sixth of their time at 100k elements: benchmarks/formats.py.)
 """
 
 from __future__ import annotations

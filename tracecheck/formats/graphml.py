@@ -34,13 +34,13 @@ from typing import Any
 
 from lxml import etree
 
+from tracecheck.collection import collection_paused
 from tracecheck.errors import InputError
 from tracecheck.formats import register, xmlsafe
 from tracecheck.formats.mapping import (
     adapter_options,
     check_xml_text,
     format_scalar,
-    gc_paused,
     json_list,
     parse_bool,
     value_type,
@@ -224,7 +224,7 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         Refused or malformed XML, a root that is not GraphML, a node without id or kind,
         an edge without ends or relation, a value that does not match its key's type.
     """
-    with gc_paused():  # see mapping.gc_paused
+    with collection_paused():  # see tracecheck.collection
         return _parse(data, origin, options)
 
 

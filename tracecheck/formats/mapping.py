@@ -3,17 +3,15 @@ attribute values that formats without lists or numbers need to spell out."""
 
 from __future__ import annotations
 
-import gc
 import json
 import math
 import re
-from collections.abc import Iterator, Mapping
-from contextlib import contextmanager
+from collections.abc import Mapping
 from typing import Any
 
 from tracecheck.errors import ConfigError, InputError
 
-__all__ = ["adapter_options", "value_type", "format_scalar", "check_xml_text", "json_list", "gc_paused"]
+__all__ = ["adapter_options", "value_type", "format_scalar", "check_xml_text", "json_list"]
 
 # A spec maps option name -> (default, kind); kind is "str", "str?" (may be unset),
 # "map" (string -> string table) or "list?" (list of strings, may be unset).
@@ -108,21 +106,3 @@ def check_xml_text(text: str, what: str) -> str:
             "represent; remove it or keep the model in thread JSON."
         )
     return text
-
-
-@contextmanager
-def gc_paused() -> Iterator[None]:
-    """Pause the cyclic garbage collector while a reader builds a model.
-
-    A reader allocates hundreds of thousands of dicts and tuples that live on, and
-    no reference cycles; every full collection rescans all of them, which cost about a
-    sixth of the ReqIF and GraphML readers' time at 100k elements
-    (benchmarks/formats.py). Reference counting still frees everything as usual.
-    """
-    enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if enabled:
-            gc.enable()

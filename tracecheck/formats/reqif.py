@@ -53,13 +53,13 @@ from typing import Any
 from lxml import etree
 
 from tracecheck import __version__
+from tracecheck.collection import collection_paused
 from tracecheck.errors import InputError
 from tracecheck.formats import register, xmlsafe
 from tracecheck.formats.mapping import (
     adapter_options,
     check_xml_text,
     format_scalar,
-    gc_paused,
     json_list,
     parse_bool,
     value_type,
@@ -421,7 +421,7 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         namespace, a reference to an unknown type or attribute definition, a value that
         does not fit its datatype.
     """
-    with gc_paused():  # see mapping.gc_paused
+    with collection_paused():  # see tracecheck.collection
         return _parse(data, origin, options)
 
 
