@@ -384,6 +384,20 @@ def test_minimise_stops_at_the_first_iterate_the_callback_accepts():
     assert not np.allclose(found, 1.0)  # stopped early, far from the minimum at (1, ..., 1)
 
 
+def test_blas_is_held_to_one_thread_inside_and_restored_after():
+    # Oracle: threadpoolctl's own report of the loaded BLAS libraries and their counts.
+    from threadpoolctl import threadpool_info
+
+    from tracecheck.embedding.threads import single_blas_thread
+
+    def counts():
+        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+    before = counts()
+    with single_blas_thread():
+        assert counts() and all(c == 1 for c in counts())
+    assert counts() == before
+
 # --- slow: opt in with TRACECHECK_SLOW_TESTS=1 (skipped by default; see DEVELOPERS.md) ---
 
 @pytest.mark.skipif(not os.environ.get("TRACECHECK_SLOW_TESTS"), reason="slow (about a minute); set TRACECHECK_SLOW_TESTS=1")
