@@ -398,6 +398,7 @@ def test_blas_is_held_to_one_thread_inside_and_restored_after():
         assert counts() and all(c == 1 for c in counts())
     assert counts() == before
 
+
 # --- slow: opt in with TRACECHECK_SLOW_TESTS=1 (skipped by default; see DEVELOPERS.md) ---
 
 @pytest.mark.skipif(not os.environ.get("TRACECHECK_SLOW_TESTS"), reason="slow (about a minute); set TRACECHECK_SLOW_TESTS=1")
