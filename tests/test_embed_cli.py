@@ -58,7 +58,7 @@ def test_fit_then_verify_is_exact_and_json_is_the_contract(fitted):
     document = json.loads(result.stdout)
     assert set(document) == VERIFY_KEYS
     assert document["exact"] is True and document["missing"] == document["spurious"] == []
-    assert document["dimension"] == 5  # the karate record of tests/test_embedding.py
+    assert document["dimension"] == 4  # the karate record of tests/test_embedding.py
     with np.load(emb, allow_pickle=False) as archive:  # what the file promises to hold
         assert {"x", "y", "ids", "dimension", "threshold", "settings", "fingerprint"} <= set(archive.files)
         assert [str(i) for i in archive["ids"][:2]] == ["M00", "M01"]

@@ -263,16 +263,20 @@ def coverage(ctx: click.Context, model: str, fmt: str, output: str | None, confi
 @click.option("--fail-on", type=SEVERITY_CHOICE, default="error", show_default=True,
               help="Exit 1 when a new finding has this severity or a higher one.")
 @click.option("--input-format", default=None, help="Read the models as this format instead of detecting it.")
+@click.option("--embedding", default=None, metavar="EMB",
+              help="Also verify this embedding (.npz from 'embed fit') against each head model.")
 @_review_options
 @click.pass_context
 def gate(ctx: click.Context, paths: tuple[str, ...], fmt: str, output: str | None, config_option: str | None,
          quiet: bool, no_color: bool, debug: bool, base: str | None, head: str | None, exact_base: bool,
-         fail_on: str, input_format: str | None, waivers_option: str | None, today_option: str | None) -> int:
+         fail_on: str, input_format: str | None, embedding: str | None, waivers_option: str | None,
+         today_option: str | None) -> int:
     """Pre-merge gate: fail only on findings a change adds to the model files PATH...
 
     Compares head with the merge-base of --base and head (as a pull request shows the
     change) and reports findings new on head, findings resolved, and the diff summary.
-    Exit 1 when a new, unwaived finding is at or above --fail-on.
+    Exit 1 when a new, unwaived finding is at or above --fail-on, or when --embedding
+    is given and the embedding does not reproduce a head model exactly.
     """
     from tracecheck.commands import gate as command
 
@@ -289,6 +293,7 @@ def gate(ctx: click.Context, paths: tuple[str, ...], fmt: str, output: str | Non
         waivers_option=waivers_option,
         today_option=today_option,
         options=_render_options(ctx, quiet, no_color, output),
+        embedding=embedding,
     )
 
 

@@ -138,20 +138,41 @@ class GateResult(CheckResult):
     base: dict[str, Any] = field(default_factory=dict)  # rev, commit, how it was chosen
     head: dict[str, Any] = field(default_factory=dict)  # rev (None: working tree), commit
     files: tuple[FileOutcome, ...] = ()
+    # The optional embedding check (gate --embedding): the file, and per head model its
+    # path and embedding VerifyResult. A non-exact embedding fails the gate.
+    embedding_file: str | None = None
+    embedding: tuple[tuple[str, Any], ...] = ()
+
+    @property
+    def embedding_exact(self) -> bool | None:
+        """``None`` when no embedding was given, else whether it reproduces every head model."""
+        if self.embedding_file is None:
+            return None
+        return all(check.exact for _, check in self.embedding)
+
+    @property
+    def exit_code(self) -> int:
+        return 1 if self.failing or self.embedding_exact is False else 0
 
     def summary(self) -> dict[str, Any]:
         statuses = Counter(f.status for f in self.files)
+        extra = {} if self.embedding_file is None else {"embedding_exact": self.embedding_exact}
         return super().summary() | {
             "new": len(self.findings),
             "resolved": len(self.resolved),
             "files": {s: statuses.get(s, 0) for s in FILE_STATUSES},
-        }
+            "failed": self.exit_code == 1,
+        } | extra
 
     def to_json(self) -> dict[str, Any]:
-        return super().to_json() | {
-            "resolved": [f.to_json() for f in self.resolved],
-            "gate": {"base": self.base, "head": self.head, "files": [f.to_json() for f in self.files]},
-        }
+        gate = {"base": self.base, "head": self.head, "files": [f.to_json() for f in self.files]}
+        if self.embedding_file is not None:
+            gate["embedding"] = {
+                "file": self.embedding_file,
+                "exact": self.embedding_exact,
+                "models": [{"path": path} | check.to_json() for path, check in self.embedding],
+            }
+        return super().to_json() | {"resolved": [f.to_json() for f in self.resolved], "gate": gate}
 
 
 def sorted_findings(findings) -> list[Finding]:

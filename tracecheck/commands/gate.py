@@ -4,6 +4,8 @@ Reads each model file at base and on head (a revision, or the working tree), com
 their findings (:mod:`tracecheck.gate`), applies the waivers, and renders the result.
 The base is the merge-base of ``--base`` (default: the repository's default branch)
 and head, as a pull request shows the change; ``--exact-base`` takes REV itself.
+With ``--embedding EMB`` the stored embedding is also verified against each head model;
+a non-exact one fails the gate (exit 1).
 """
 
 from __future__ import annotations
@@ -91,6 +93,18 @@ def _paths(paths: list[str], cwd: Path) -> list[str]:
     return list(seen)
 
 
+def _embedding_checks(path: str | None, sides: list[FileSides]) -> tuple[tuple, tuple[str, ...]]:
+    """Verify the embedding at ``path`` against each head model; notes for absent ones."""
+    if path is None:
+        return (), ()
+    from tracecheck.embedding import verify_file  # numpy work only when asked for
+
+    checks = tuple((s.path, verify_file(s.head, path)) for s in sides if s.head is not None)
+    absent = tuple(f"{s.path}: absent on head, so the embedding was not verified against it."
+                   for s in sides if s.head is None)
+    return checks, absent
+
+
 def run(
     paths: list[str],
     *,
@@ -106,6 +120,7 @@ def run(
     today_option: str | None = None,
     options: RenderOptions | None = None,
     streams: Streams | None = None,
+    embedding: str | None = None,
 ) -> int:
     streams = streams or Streams.default()
     options = options or RenderOptions()
@@ -116,8 +131,8 @@ def run(
     base_commit, base_info = choose_base(base, head, exact_base, cwd)
     streams.stderr.write(f"tracecheck gate: base is the {base_info['how']}: {base_commit[:12]}\n")
     config = resolve_config(config_option, (root / relative[0]).parent)
-    outcomes = [compare_file(_sides(p, root, base_commit, head, config, input_format), config)
-                for p in relative]
+    sides = [_sides(p, root, base_commit, head, config, input_format) for p in relative]
+    outcomes = [compare_file(one, config) for one in sides]
     old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
     review = apply_review(
         [f for o in outcomes for f in o.head_findings], config, cwd,
@@ -126,6 +141,7 @@ def run(
     standing = {id(f) for f in review.findings}
     outcomes = [dataclasses.replace(o, new=[f for f in o.new if id(f) in standing]) for o in outcomes]
     uris = {i["path"]: o.path for o in outcomes for i in o.inputs}
+    checks, absent = _embedding_checks(embedding, sides)
     result = GateResult(
         findings=review.findings,
         inputs=[i for o in outcomes for i in o.inputs] + review.config_inputs(config),
@@ -133,11 +149,13 @@ def run(
         waivers=review.waivers,
         rule_ids=tuple(r for r in rules() if r not in config.disabled),
         uris=uris | review.uris(root),
-        notes=tuple(o.note for o in outcomes if o.note),
+        notes=tuple(o.note for o in outcomes if o.note) + absent,
         resolved=tuple(sorted_findings(f for o in outcomes for f in o.resolved)),
         base=base_info,
         head={"rev": head, "commit": head_commit, "worktree": head is None},
         files=tuple(outcomes),
+        embedding_file=embedding,
+        embedding=checks,
     )
     emit(render("gate", fmt, result, options), output, streams)
     if fmt == "github" and os.environ.get("GITHUB_STEP_SUMMARY"):

@@ -3,7 +3,7 @@
 Each element ``i`` gets a source vector ``x_i`` and a target vector ``y_i`` in
 ``R^k``; the decoder predicts ``i -> j`` when ``x_i . y_j > 0``. Training minimises
 the class-weighted squared hinge of :mod:`tracecheck.embedding.objective` with
-L-BFGS (numpy, :mod:`tracecheck.embedding.lbfgs`) from a seeded start, and stops at the first iterate whose every
+scipy's L-BFGS-B from a seeded start, and stops at the first iterate whose every
 ordered pair is on the right side of the threshold by the float64 certification
 margin. Small graphs (``n <= dense_limit``) are trained full-batch on all ``n^2``
 pairs; larger ones on an *active set* -- every link, a seeded sample of non-links,
@@ -22,7 +22,7 @@ References
 S. Chanpuriya, C. Musco, K. Sotiropoulos, C. E. Tsourakakis, "Node Embeddings and Exact
 Low-Rank Representations of Complex Networks", NeurIPS 2020.
 R. H. Byrd, P. Lu, J. Nocedal, C. Zhu, "A Limited Memory Algorithm for Bound Constrained
-Optimization", SIAM J. Sci. Comput. 16(5), 1995 (L-BFGS-B, scipy's; a benchmark baseline).
+Optimization", SIAM J. Sci. Comput. 16(5), 1995 (L-BFGS-B, scipy's).
 """
 
 from __future__ import annotations
@@ -32,12 +32,10 @@ from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass, field
 
 import numpy as np
-from scipy.optimize import minimize
 
 from tracecheck.embedding.factors import Embedding, certification_margin, truncate
 from tracecheck.embedding.graph import PairGraph, pair_graph
-from tracecheck.embedding.lbfgs import minimize_lbfgs
-from tracecheck.embedding.objective import dense_objective, pair_objective, split
+from tracecheck.embedding.objective import dense_objective, minimise, pair_objective, split
 from tracecheck.embedding.scan import BLOCK_BYTES, scan
 from tracecheck.embedding.threads import one_blas_thread
 from tracecheck.embedding.verify import VerifyResult, verify
@@ -57,9 +55,6 @@ class FitSettings:
     ----------
     seed
         Base seed; attempt ``r`` at dimension ``k`` starts from ``default_rng([seed, k, r])``.
-    optimizer
-        ``"lbfgs"`` (:mod:`tracecheck.embedding.lbfgs`, numpy) or ``"scipy-lbfgsb"``
-        (scipy's L-BFGS-B, the benchmark's baseline).
     max_iter
         Iteration cap of one attempt (of one active-set round).
     patience
@@ -92,7 +87,6 @@ class FitSettings:
     """
 
     seed: int = 0
-    optimizer: str = "lbfgs"
     loss: str = "squared-hinge"
     max_iter: int = 3000
     patience: int = 150
@@ -178,26 +172,9 @@ class _Monitor:
 
 def _optimise(objective, theta: np.ndarray, monitor: _Monitor, settings: FitSettings,
               max_iter: int | None = None) -> None:
-    max_iter = max_iter or settings.max_iter
-    if settings.optimizer == "lbfgs":
-        minimize_lbfgs(objective, theta, callback=monitor, max_iter=max_iter)
-    elif settings.optimizer == "scipy-lbfgsb":
-        _lbfgsb(objective, theta, monitor, max_iter)
-    else:
-        raise ValueError(f"unknown optimizer {settings.optimizer!r}")
+    minimise(objective, theta, max_iter=max_iter or settings.max_iter, callback=monitor)
     if monitor.best_theta is None:  # not one iteration: judge the start
         monitor(theta)
-
-
-def _lbfgsb(objective, theta, monitor, max_iter) -> None:
-    def callback(intermediate_result):
-        if monitor(intermediate_result.x):
-            raise StopIteration
-
-    minimize(
-        objective, theta, jac=True, method="L-BFGS-B", callback=callback,
-        options={"maxiter": max_iter, "maxfun": 2 * max_iter, "ftol": 0.0, "gtol": 0.0, "maxcor": 20},
-    )
 
 
 def _logits_for(state, objective, theta: np.ndarray) -> np.ndarray:

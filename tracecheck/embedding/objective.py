@@ -19,6 +19,8 @@ References
 S. Chanpuriya, C. Musco, K. Sotiropoulos, C. E. Tsourakakis, "Node Embeddings and Exact
 Low-Rank Representations of Complex Networks", NeurIPS 2020 (the logistic
 factorisation and its exact low-rank fits).
+R. H. Byrd, P. Lu, J. Nocedal, C. Zhu, "A Limited Memory Algorithm for Bound Constrained
+Optimization", SIAM J. Sci. Comput. 16(5), 1995 (L-BFGS-B, scipy's, used unbounded here).
 """
 
 from __future__ import annotations
@@ -28,11 +30,58 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import sparse
+from scipy.optimize import minimize
 
-__all__ = ["LOSSES", "Objective", "dense_objective", "pair_objective", "split", "pair_loss"]
+__all__ = ["LOSSES", "Objective", "dense_objective", "pair_objective", "split", "pair_loss", "minimise"]
 
 LOSSES = ("squared-hinge", "logistic")
 Objective = Callable[[np.ndarray], tuple[float, np.ndarray]]
+
+
+def minimise(objective: Objective, theta: np.ndarray, *, max_iter: int,
+             callback: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
+    """Run scipy's L-BFGS-B on ``objective`` from ``theta``; return the last iterate.
+
+    Parameters
+    ----------
+    objective
+        ``theta -> (value, gradient)``, continuously differentiable (both losses are).
+    theta
+        Start; not modified.
+    max_iter
+        Iteration cap.
+    callback
+        Called with each new iterate; returning ``True`` stops the run there (the exact
+        fits stop at the first certified iterate).
+
+    Returns
+    -------
+    numpy.ndarray
+        The iterate the run ended on.
+
+    Examples
+    --------
+    >>> x = minimise(lambda t: (float(t @ t), 2 * t), np.array([3.0, -4.0]), max_iter=50)
+    >>> bool(np.allclose(x, 0.0))
+    True
+
+    References
+    ----------
+    R. H. Byrd, P. Lu, J. Nocedal, C. Zhu, SIAM J. Sci. Comput. 16(5), 1995.
+    """
+    last = [np.array(theta, dtype=np.float64)]
+
+    def step(intermediate_result) -> None:
+        last[0] = np.array(intermediate_result.x)  # scipy may reuse its buffer
+        if callback is not None and callback(intermediate_result.x):
+            raise StopIteration  # scipy >= 1.11 ends the run and keeps this iterate
+
+    # No tolerance stops: the caller's callback or the iteration cap ends a run, so the
+    # result does not hinge on how flat the loss happens to be.
+    minimize(objective, last[0], jac=True, method="L-BFGS-B", callback=step,
+             options={"maxiter": max_iter, "maxfun": 2 * max_iter, "ftol": 0.0, "gtol": 0.0,
+                      "maxcor": 20})
+    return last[0]
 
 
 def split(theta: np.ndarray, n: int, k: int) -> tuple[np.ndarray, np.ndarray]:

@@ -24,9 +24,8 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from tracecheck.embedding.graph import PairGraph, pair_graph
-from tracecheck.embedding.lbfgs import minimize_lbfgs
 from tracecheck.embedding.metrics import average_precision, roc_auc
-from tracecheck.embedding.objective import dense_objective, pair_objective, split
+from tracecheck.embedding.objective import dense_objective, minimise, pair_objective, split
 from tracecheck.embedding.threads import one_blas_thread
 from tracecheck.model import Model
 
@@ -136,7 +135,7 @@ def _train(graph: PairGraph, src: np.ndarray, dst: np.ndarray, settings: Suggest
         objective, _ = pair_objective(n, k, all_keys // n, all_keys % n, sign, weight,
                                       loss="logistic", l2=settings.l2 * negatives.size / m)
     # A fixed small iteration count is the early stopping: long runs memorise the graph.
-    found = minimize_lbfgs(objective, theta, callback=lambda t: False, max_iter=settings.max_iter)
+    found = minimise(objective, theta, max_iter=settings.max_iter)
     return split(found, n, k)
 
 

@@ -109,7 +109,7 @@ def verify(
     >>> from tracecheck.model import Element, Link, Model
     >>> import numpy as np
     >>> m = Model([Element("A", "test"), Element("B", "requirement")], [Link("A", "B", "verifies")])
-    >>> e = Embedding(np.array([[1.0], [-1.0]]), np.array([[-1.0], [1.0]]), ("A", "B"))
+    >>> e = Embedding(np.array([[1.0], [-1.0]]), np.array([[1.0], [1.0]]), ("A", "B"))
     >>> verify(m, e).exact
     True
     """

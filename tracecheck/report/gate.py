@@ -36,7 +36,10 @@ def verdict(result: GateResult) -> str:
     text += f", {s['resolved']} resolved"
     if "waived" in s:
         text += f", {s['waived']} waived"
-    return text + f"; failing at {result.fail_on} or above."
+    if result.embedding_exact is not None:
+        text += f", embedding {'exact' if result.embedding_exact else 'NOT EXACT'}"
+    return text + f"; failing at {result.fail_on} or above" + (
+        ", or on an inexact embedding." if result.embedding_exact is not None else ".")
 
 
 def _side(info: dict) -> str:
@@ -104,6 +107,22 @@ def review_text(result: CheckResult) -> list:
     return items
 
 
+def _embedding_text(result: GateResult) -> list:
+    """The optional embedding check: a verdict per head model, then what it misses or invents."""
+    if result.embedding_file is None:
+        return []
+    from tracecheck.report.embed import _link_table, verify_verdict
+
+    items: list = [Text(""), Text(f"Embedding {result.embedding_file}", style="bold")]
+    for path, check in result.embedding:
+        items.append(Text(f"  {path}: {verify_verdict(check)}", style="" if check.exact else "red"))
+        items += _link_table(f"{path}: missing (in the model, not reproduced)", check.missing, "red")
+        items += _link_table(f"{path}: spurious (predicted, not in the model)", check.spurious, "red")
+        if check.unknown_elements:
+            items.append(Text(f"  {path}: unknown elements: {', '.join(check.unknown_elements)}", style="red"))
+    return items
+
+
 @renderer("gate", "text")
 def gate_text(result: GateResult, options: RenderOptions) -> str:
     items: list = []
@@ -116,8 +135,9 @@ def gate_text(result: GateResult, options: RenderOptions) -> str:
         items += _finding_rows(result, result.findings, "New findings")
         items += _finding_rows(result, result.resolved, "Resolved")
         items += review_text(result)
+        items += _embedding_text(result)
         items.append(Text(""))
-    items.append(Text(verdict(result), style="bold red" if result.failing else "bold green"))
+    items.append(Text(verdict(result), style="bold red" if result.exit_code else "bold green"))
     return to_text(items, options)
 
 
@@ -194,8 +214,27 @@ def gate_markdown(result: GateResult, options: RenderOptions) -> str:
     lines += _finding_table(result, result.findings, "New findings")
     lines += _finding_table(result, list(result.resolved), "Resolved")
     lines += review_markdown(result)
+    lines += _embedding_markdown(result)
     lines += [f"_{CAUTION}_", ""]
     return "\n".join(lines)
+
+
+def _embedding_markdown(result: GateResult) -> list[str]:
+    if result.embedding_file is None:
+        return []
+    from tracecheck.report.embed import verify_verdict
+
+    lines = [f"### Embedding `{md_escape(result.embedding_file)}`", ""]
+    for path, check in result.embedding:
+        lines += [f"`{md_escape(path)}`: {md_escape(verify_verdict(check))}", ""]
+        rows = [[_cell(link.source), _cell(link.relation or "(any)"), _cell(link.target), side]
+                for side, links in (("missing", check.missing), ("spurious", check.spurious))
+                for link in links]
+        if rows:
+            lines += _table(["source", "relation", "target", "kind"], rows, f"{md_escape(path)}: links")
+        if check.unknown_elements:
+            lines += [f"Unknown elements: {md_escape(', '.join(check.unknown_elements))}", ""]
+    return lines
 
 
 def check_summary(result: CheckResult, options: RenderOptions) -> str:
