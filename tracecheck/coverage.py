@@ -115,8 +115,24 @@ def evaluate_codes(model: Model, declaration: Declaration) -> tuple[np.ndarray, 
 
     For callers that need only part of the answer (the ``coverage`` rule reports the
     uncovered): turning every covered code into a sorted id costs more than the count.
+
+    Computed once per model and declaration object: the ``coverage`` rule and the
+    diff's before/after table ask for the same declarations of the same model. The
+    arrays returned are read-only.
     """
     arrays = model.arrays
+    cache = arrays.coverage_cache
+    hit = cache.get(id(declaration))
+    if hit is not None and hit[0] is declaration:
+        return hit[1]
+    result = _evaluate_codes(arrays, declaration)
+    for codes in result:
+        codes.flags.writeable = False
+    cache[id(declaration)] = (declaration, result)  # keeps the key's object alive
+    return result
+
+
+def _evaluate_codes(arrays: ModelArrays, declaration: Declaration) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     code = arrays.kind_code.get(declaration.kind)
     if code is None:
         empty = np.zeros(0, dtype=np.int64)

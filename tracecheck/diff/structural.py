@@ -8,6 +8,7 @@ from collections import defaultdict
 from collections.abc import Mapping
 from typing import Any
 
+from tracecheck.diff.sides import side_of
 from tracecheck.model import Element, Model
 
 __all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
@@ -91,9 +92,10 @@ def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
 def moves(old: Model, new: Model, mapping: Mapping[str, str]) -> list[dict[str, str | None]]:
     """Matched elements whose parent, seen through the mapping, is a different element."""
     found = []
+    old_parent, new_parent = side_of(old).parent, side_of(new).parent
     for old_id, new_id in mapping.items():
-        before = old.by_id[old_id].parent
-        after = new.by_id[new_id].parent
+        before = old_parent(old_id)
+        after = new_parent(new_id)
         translated = None if before is None else mapping.get(before, before)
         if translated != after:
             found.append({"id": new_id, "old_parent": before, "new_parent": after})
@@ -115,15 +117,19 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     """
     # Plain set algebra on triples; only links touching a re-identified element need
     # carrying into the new ids (matched ids are mostly unchanged).
+    # Triples come straight from the columns (no Link objects); the links touching a
+    # renamed element are found through the link index of each renamed end.
     renamed = {o: n for o, n in mapping.items() if o != n}
-    before = {(lk.source, lk.target, lk.relation) for lk in old.links}
+    old_side = side_of(old)
+    before = old_side.triples
     origin: dict[tuple[str, str, str], tuple[str, str, str]] = {}
     if renamed:
-        touched = {t for t in before if t[0] in renamed or t[1] in renamed}
+        touched = set()
+        for old_id in renamed:
+            touched.update(old_side.outgoing(old_id), old_side.incoming(old_id))
         origin = {(renamed.get(s, s), renamed.get(t, t), r): (s, t, r) for s, t, r in touched}
-        before -= touched
-        before |= origin.keys()
-    now = {(lk.source, lk.target, lk.relation) for lk in new.links}
+        before = (before - touched) | origin.keys()
+    now = side_of(new).triples
     lost = before - now
     removed = sorted(origin.get(k, k) for k in lost)
     added = sorted(now - before)

@@ -487,6 +487,20 @@ class _ThreadColumns:
     def element_location(self, index: int) -> Location:
         return Location(self._origin, self._lines()["elements"][index])
 
+    def element_content(self, index: int) -> Element:
+        """Element ``index`` for reading its fields; its location is set only when the
+        lines are known already (finding them scans the whole file)."""
+        e = self._element_items[index]
+        location = None if self.lines is None else Location(self._origin, self.lines["elements"][index])
+        return Element(e["id"], e["kind"], e.get("name"), e.get("text"), e.get("parent"),
+                       e.get("attributes") or {}, location)
+
+    @property
+    def element_items(self) -> list[dict[str, Any]]:
+        """The decoded element items in file order (read only): the diff compares
+        them whole before it compares fields."""
+        return self._element_items
+
     def link_location(self, index: int) -> Location:
         return Location(self._origin, self._lines()["links"][index])
 
