@@ -105,7 +105,7 @@ def compare_file(sides: FileSides, config: Config) -> FileOutcome:
 
 
 def _big(model: Model) -> bool:
-    return len(model.elements) + len(model.links) >= FORK_MIN
+    return model.element_count + model.link_count >= FORK_MIN  # counts without building objects
 
 
 def _diff(sides: FileSides, config: Config) -> dict[str, Any]:

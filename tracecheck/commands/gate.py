@@ -13,6 +13,7 @@ import os
 from pathlib import Path
 
 from tracecheck import gitsource
+from tracecheck.collection import collection_paused
 from tracecheck.commands.common import Streams, emit, resolve_config
 from tracecheck.commands.outcome import apply_review, step_summary
 from tracecheck.config import Config
@@ -109,6 +110,15 @@ def run(
 ) -> int:
     streams = streams or Streams.default()
     options = options or RenderOptions()
+    # Each file's two models are freed by reference counting once compared; the cyclic
+    # collector stays paused until then, so it never walks them (tracecheck.collection).
+    with collection_paused():
+        return _run(paths, base, head, exact_base, fmt, output, config_option, input_format, fail_on,
+                    waivers_option, today_option, options, streams)
+
+
+def _run(paths, base, head, exact_base, fmt, output, config_option, input_format, fail_on,
+         waivers_option, today_option, options, streams) -> int:
     cwd = Path.cwd()
     root = gitsource.repo_root(cwd)
     relative = _paths(paths, cwd)
