@@ -48,7 +48,11 @@ def _plain(old: Model, new: Model, mapping: dict[str, str]) -> dict:
     for lk in old.links:
         origin[(renamed.get(lk.source, lk.source), renamed.get(lk.target, lk.target), lk.relation)].append(lk.triple)
     now = {lk.triple for lk in new.links}
-    removed = sorted(min(origin[k]) if len(set(origin[k])) == 1 else origin[k][0] for k in origin.keys() - now)
+    # Where several old links collapse into one triple after renaming (a dangling end
+    # that names a renamed element's new id), the one touching a renamed element
+    # stands for them, the first in file order.
+    removed = sorted(next((t for t in origin[k] if t[0] in renamed or t[1] in renamed), origin[k][0])
+                     for k in origin.keys() - now)
     added = sorted(now - origin.keys())
     return {
         "added": sorted(i for i in new.by_id if i not in image),

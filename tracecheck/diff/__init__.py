@@ -10,6 +10,7 @@ import operator
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from itertools import chain, compress, repeat
 from typing import Any
 
 from tracecheck.config import Config
@@ -101,6 +102,20 @@ def _same_types(x: Mapping[str, Any], y: Mapping[str, Any]) -> bool:
     return list(x) == list(y) and list(map(type, x.values())) == list(map(type, y.values()))
 
 
+def _same_attribute_types(olds: list[Mapping[str, Any]], news: list[Mapping[str, Any]]) -> bool:
+    """For pairwise equal items: True when every pair's attribute keys come in the same
+    order with values of the same types. All pairs at once, in C-level passes over the
+    concatenated keys and value types (equal maps have equal lengths, so they align)."""
+    def attributes(items):
+        return [x or {} for x in map(dict.get, items, repeat("attributes"))]
+
+    def types(maps):
+        return list(map(type, chain.from_iterable(map(dict.values, maps))))
+
+    a, b = attributes(olds), attributes(news)
+    return list(chain.from_iterable(a)) == list(chain.from_iterable(b)) and types(a) == types(b)
+
+
 def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[str, str]]:
     """Matched pairs whose fields may differ, sorted by new id.
 
@@ -111,14 +126,16 @@ def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[
     compared fields before the field-by-field one.
     """
     pairs = list(mapping.items())
-    olds, news = list(mapping), list(mapping.values())
-    old_items, new_items = old.items(olds), new.items(news)
+    old_items, new_items = old.items(list(mapping)), new.items(list(mapping.values()))
     if old_items is not None and new_items is not None:
         equal = list(map(operator.eq, old_items, new_items))
-        pairs = [
-            pair for pair, same, a, b in zip(pairs, equal, old_items, new_items, strict=True)
-            if not (same and (not (x := a.get("attributes")) or _same_types(x, b["attributes"])))
-        ]
+        if _same_attribute_types(list(compress(old_items, equal)), list(compress(new_items, equal))):
+            pairs = list(compress(pairs, map(operator.not_, equal)))
+        else:
+            pairs = [
+                pair for pair, same, a, b in zip(pairs, equal, old_items, new_items, strict=True)
+                if not (same and (not (x := a.get("attributes")) or _same_types(x, b["attributes"])))
+            ]
     candidates = [(o, n) for o, n in pairs if not _same_fields(old.element(o), new.element(n))]
     return sorted(candidates, key=lambda p: p[1])
 

@@ -3,8 +3,8 @@
 A model read from thread JSON keeps its elements and links as columns until someone
 asks for the objects (:mod:`tracecheck.model`); building all of them cost more than
 half of a 100k-element diff. The diff only needs the distinct ids, the parent of each
-matched element, the fields of the few elements whose content differs, the link
-triples, and the links of the few elements near a change. :class:`Side` gives exactly
+matched element, the fields of the few elements whose content differs, and the links
+of the few elements near a change. :class:`Side` gives exactly
 those: triples come straight from the columns, a link index per end is two stable
 ``argsort`` passes over the integer codes, and an element object is built only when
 its fields are compared.
@@ -82,12 +82,6 @@ class Side:
 
     def parent(self, element_id: str) -> str | None:
         return self._parents[self.position[element_id]]
-
-    @cached_property
-    def triples(self) -> set[Triple]:
-        """Distinct (source, target, relation) of every link."""
-        columns = self.columns
-        return set(zip(columns.link_sources, columns.link_targets, columns.link_relations, strict=True))
 
     def _triple(self, index: int) -> Triple:
         columns = self.columns
