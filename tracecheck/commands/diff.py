@@ -9,6 +9,7 @@ from tracecheck.commands.common import Streams, emit, load
 from tracecheck.diff import diff_models
 from tracecheck.errors import UsageError
 from tracecheck.report import RenderOptions, render
+from tracecheck.report.progress import late_progress, progress_enabled
 
 __all__ = ["run", "sides"]
 
@@ -63,8 +64,12 @@ def run(
 def _run(old_spec, new_spec, fmt, output, config_option, input_format, fail_on_change, options, streams) -> int:
     # One configuration for both sides, found from the new one: the rules of the stage
     # under review judge both.
-    after = load(new_spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
-    before = load(old_spec, input_format=input_format, stdin=streams.stdin, config=after.config)
-    result = diff_models(before.model, after.model, after.config, with_picture=fmt == "html")
+    with late_progress("diff", enabled=progress_enabled(options.quiet)) as step:
+        step(0.0, f"reading {new_spec}")
+        after = load(new_spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
+        step(0.3, f"reading {old_spec}")
+        before = load(old_spec, input_format=input_format, stdin=streams.stdin, config=after.config)
+        step(0.6, "comparing")
+        result = diff_models(before.model, after.model, after.config, with_picture=fmt == "html")
     emit(render("diff", fmt, result, options), output, streams)
     return 1 if fail_on_change and result.changed else 0

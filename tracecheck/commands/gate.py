@@ -21,6 +21,7 @@ from tracecheck.errors import InputError, UsageError
 from tracecheck.formats import read_model
 from tracecheck.gate import FileSides, GateResult, compare_file, sorted_findings
 from tracecheck.report import RenderOptions, render
+from tracecheck.report.progress import late_progress, progress_enabled
 from tracecheck.rules import rules
 
 __all__ = ["run", "choose_base"]
@@ -126,8 +127,14 @@ def _run(paths, base, head, exact_base, fmt, output, config_option, input_format
     base_commit, base_info = choose_base(base, head, exact_base, cwd)
     streams.stderr.write(f"tracecheck gate: base is the {base_info['how']}: {base_commit[:12]}\n")
     config = resolve_config(config_option, (root / relative[0]).parent)
-    outcomes = [compare_file(_sides(p, root, base_commit, head, config, input_format), config)
-                for p in relative]
+    outcomes = []
+    with late_progress("gate", enabled=progress_enabled(options.quiet)) as step:
+        for n, path in enumerate(relative):
+            step(n / len(relative), f"reading {path}")
+            sides = _sides(path, root, base_commit, head, config, input_format)
+            step((n + 0.5) / len(relative), f"comparing {path}")
+            outcomes.append(compare_file(sides, config))
+            del sides  # each file's models are freed before the next is read
     old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
     review = apply_review(
         [f for o in outcomes for f in o.head_findings], config, cwd,
