@@ -15,8 +15,8 @@ from collections import defaultdict
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tracecheck.config import Config
-from tracecheck.coverage import evaluate_codes
+from tracecheck.config import Condition, Config
+from tracecheck.coverage import counterparts, evaluate_codes
 from tracecheck.demo.stages import STAGE_NAMES, stage_bytes
 from tracecheck.diff import diff_models
 from tracecheck.diff.matching import match_elements
@@ -184,3 +184,31 @@ def test_coverage_is_computed_once_per_model_and_declaration():
     # A fresh model of the same bytes computes the same answer itself.
     again = evaluate_codes(parse(stage_bytes("qualification"), "q.json"), declaration)
     assert [c.tolist() for c in again] == [c.tolist() for c in first]
+
+
+def _plain_counterparts(model: Model, element_id: str, condition: Condition) -> set[str]:
+    """counterparts() as written before, from Link objects and by_id."""
+    links = model.incoming.get(element_id, ()) if condition.direction == "incoming" else model.outgoing.get(
+        element_id, ())
+    found = set()
+    for link in links:
+        if link.relation not in condition.relations:
+            continue
+        end = link.source if condition.direction == "incoming" else link.target
+        other = model.by_id.get(end)
+        if other is not None and end != element_id and (condition.kinds is None or other.kind in condition.kinds):
+            found.add(end)
+    return found
+
+
+@settings(max_examples=100, deadline=None)
+@given(_documents(), st.sampled_from(["incoming", "outgoing"]),
+       st.sampled_from([("verifies",), ("verifies", "derives_from")]),
+       st.sampled_from([None, frozenset({"test"}), frozenset({"requirement", "test"})]))
+def test_counterparts_from_codes_equal_the_plain_ones(document, direction, relations, kinds):
+    model = parse(document, "m.json")
+    objects = _objects(parse(document, "m.json"))
+    condition = Condition(direction, relations, kinds)
+    for element_id in objects.by_id:
+        assert counterparts(model, element_id, condition) == _plain_counterparts(objects, element_id, condition)
+    assert model.elements == objects.elements and model.links == objects.links  # built one side at a time

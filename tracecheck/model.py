@@ -187,13 +187,23 @@ class Model:
     @property
     def elements(self) -> tuple[Element, ...]:
         if self._elements is None:
-            self._materialise()
+            # Columns that can build one side alone spare the links (most of the objects)
+            # for readers of elements only, such as the coverage report.
+            build = getattr(self._columns, "materialise_elements", None)
+            if build is None:
+                self._materialise()
+            else:
+                self._elements = build()
         return self._elements  # type: ignore[return-value]
 
     @property
     def links(self) -> tuple[Link, ...]:
         if self._links is None:
-            self._materialise()
+            build = getattr(self._columns, "materialise_links", None)
+            if build is None:
+                self._materialise()
+            else:
+                self._links = build()
         return self._links  # type: ignore[return-value]
 
     @elements.setter

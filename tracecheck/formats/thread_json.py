@@ -518,19 +518,23 @@ class _ThreadColumns:
                     x.get("attributes") or {}, self.link_location(index))
 
     def materialise(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]:
-        lines = self._lines()
+        return self.materialise_elements(), self.materialise_links()
+
+    def materialise_elements(self) -> tuple[Element, ...]:
         origin = self._origin
-        elements = tuple(
+        return tuple(
             Element(e["id"], e["kind"], e.get("name"), e.get("text"), e.get("parent"),
                     e.get("attributes") or {}, Location(origin, line))
-            for e, line in zip(self._element_items, lines["elements"], strict=True)
+            for e, line in zip(self._element_items, self._lines()["elements"], strict=True)
         )
-        links = tuple(
+
+    def materialise_links(self) -> tuple[Link, ...]:
+        origin = self._origin
+        return tuple(
             Link(x["source"], x["target"], x["relation"], x.get("id"),
                  x.get("attributes") or {}, Location(origin, line))
-            for x, line in zip(self._link_items, lines["links"], strict=True)
+            for x, line in zip(self._link_items, self._lines()["links"], strict=True)
         )
-        return elements, links
 
 
 def to_document(model: Model) -> dict[str, Any]:
