@@ -1,4 +1,4 @@
-"""Scale benchmark: ``check`` at 10k / 100k / 1M elements against ``json.loads``.
+"""Scale benchmark: ``check``, ``diff``, ``coverage`` and ``gate`` at 10k / 100k / 1M elements.
 
 Generates a synthetic ferry shore-charging thread (about three links per element,
 engineering-like text, a handful of planted defects so that findings, locations and
@@ -12,8 +12,19 @@ fresh subprocess, so peak memory is the process's own:
   module; the same process then times ``json.loads`` of the file once more, which gives
   a ratio that machine load cannot skew between processes.
 
-Each measurement is the best of ``--repeat`` runs. Prints the machine, then a markdown
-table of wall times, peak resident memory and the ratios.
+A second table does the same for the other commands, each beside its own baseline:
+
+* ``diff --format json`` of the thread and a second version (``diff.py``'s ~1 % of
+  elements changed, reordered), both parses included, against ``git diff --no-index
+  --stat`` of the same two files (wall and CPU: git's CPU is its own process's);
+* ``coverage --format json`` against ``json.loads`` of the file in the same process;
+* ``gate --base main --format json`` in a 20-commit repository (``gate.py``'s, head
+  = working tree on a feature branch), against ``json.loads`` of the file in the same
+  process; CPU includes the gate's forked child. Skipped with ``--no-gate`` (building
+  the repository rewrites the file 20 times).
+
+Each measurement is the best of ``--repeat`` runs. Prints the machine, then markdown
+tables of wall times, peak resident memory and the ratios.
 
     python benchmarks/scale.py --sizes 10000,100000
 """
@@ -25,6 +36,7 @@ import json
 import os
 import platform
 import random
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -60,6 +72,28 @@ elapsed = time.perf_counter() - t
 rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
 print(elapsed, rss, time.perf_counter() - t)
+"""
+
+
+COMMAND = """
+import io, json, resource, sys, time
+from tracecheck.commands import {module}
+from tracecheck.commands.common import Streams
+t, cpu = time.perf_counter(), time.process_time()
+code = {module}.run({args}, fmt='json', output=sys.argv[1], streams=Streams(io.StringIO(), io.StringIO()))
+elapsed, cpu = time.perf_counter() - t, time.process_time() - cpu
+child = resource.getrusage(resource.RUSAGE_CHILDREN)  # the gate's forked child
+rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+t = time.perf_counter(); data = open(sys.argv[2], 'rb').read(); json.loads(data)
+print(elapsed, cpu + child.ru_utime + child.ru_stime, rss, time.perf_counter() - t)
+"""
+
+GIT_STAT = """
+import resource, subprocess, sys, time
+t = time.perf_counter()
+subprocess.run(['git', 'diff', '--no-index', '--stat', sys.argv[1], sys.argv[2]], capture_output=True)
+usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+print(time.perf_counter() - t, usage.ru_utime + usage.ru_stime, usage.ru_maxrss)
 """
 
 
@@ -117,16 +151,18 @@ def generate(n: int, path: Path, seed: int = 7) -> None:
 ROOT = Path(__file__).resolve().parents[1]
 
 
-def measure(script: str, *args: str) -> tuple[float, ...]:
+def measure(script: str, *args: str, cwd: Path | None = None, env: dict | None = None) -> tuple[float, ...]:
     # This checkout first, so the run measures the code beside the script.
-    env = {**os.environ, "PYTHONPATH": os.pathsep.join(filter(None, [str(ROOT), os.environ.get("PYTHONPATH")]))}
-    out = subprocess.run([sys.executable, "-c", script, *args], check=True, capture_output=True, text=True, env=env)
+    env = {**(env or os.environ),
+           "PYTHONPATH": os.pathsep.join(filter(None, [str(ROOT), os.environ.get("PYTHONPATH")]))}
+    out = subprocess.run([sys.executable, "-c", script, *args], check=True, capture_output=True, text=True,
+                         env=env, cwd=cwd)
     return tuple(float(x) for x in out.stdout.split())
 
 
-def best(script: str, repeat: int, *args: str) -> tuple[float, ...]:
+def best(script: str, repeat: int, *args: str, **where) -> tuple[float, ...]:
     """Fastest of ``repeat`` runs; memory is each run's own peak, so take the smallest too."""
-    runs = [measure(script, *args) for _ in range(repeat)]
+    runs = [measure(script, *args, **where) for _ in range(repeat)]
     return tuple(min(column) for column in zip(*runs, strict=True))
 
 
@@ -146,14 +182,42 @@ def machine() -> str:
     )
 
 
+def other_commands(n: int, path: Path, tmp: Path, repeat: int, gate: bool) -> list[tuple]:
+    """Rows (elements, command, baseline name, s, CPU s, baseline s, baseline CPU s, MiB)."""
+    from diff import second_version  # noqa: PLC0415  (diff.py and gate.py import this module)
+    from gate import ENV, build  # noqa: PLC0415
+
+    out = str(tmp / "out.json")
+    rows = []
+    second = tmp / f"second-{n}.json"
+    second_version(path, second)
+    git_t, git_cpu, _ = best(GIT_STAT, repeat, str(path), str(second))
+    t, cpu, rss, _ = best(COMMAND.format(module="diff", args=f"{str(path)!r}, {str(second)!r}"), repeat, out, str(path))
+    rows.append((n, "diff (both parses)", "git diff --no-index --stat", t, cpu, git_t, git_cpu, rss))
+    second.unlink()
+    t, cpu, rss, inner = best(COMMAND.format(module="coverage", args=repr(str(path))), repeat, out, str(path))
+    rows.append((n, "coverage", "json.loads, same process", t, cpu, inner, inner, rss))
+    if gate:
+        root = tmp / f"repo-{n}"
+        root.mkdir()
+        build(root, n)
+        model = str(root / "model" / "thread.json")
+        t, cpu, rss, inner = best(COMMAND.format(module="gate", args="['model/thread.json'], base='main'"),
+                                  repeat, out, model, cwd=root, env=ENV)
+        rows.append((n, "gate (20 commits)", "json.loads, same process", t, cpu, inner, inner, rss))
+        shutil.rmtree(root)
+    return rows
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--sizes", default="10000,100000")
     parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument("--no-gate", action="store_true", help="leave out the gate rows")
     args = parser.parse_args()
     print(f"Machine: {machine()}")
     orjson = has_orjson()
-    rows = []
+    rows, others = [], []
     with tempfile.TemporaryDirectory() as tmp:
         for n in (int(s) for s in args.sizes.split(",")):
             path = Path(tmp) / f"thread-{n}.json"
@@ -162,6 +226,7 @@ def main() -> None:
             fast_t, fast_m = best(ORJSON, args.repeat, str(path)) if orjson else (float("nan"),) * 2
             check_t, check_m, inner_t = best(CHECK, args.repeat, str(path), str(Path(tmp) / "out.json"))
             rows.append((n, path.stat().st_size / 1e6, base_t, fast_t, check_t, inner_t, base_m, check_m))
+            others += other_commands(n, path, Path(tmp), args.repeat, not args.no_gate)
             path.unlink()
     print()
     print("| elements | MB | json.loads s | orjson.loads s | check s | check / json.loads "
@@ -170,6 +235,12 @@ def main() -> None:
     for n, mb, bt, ft, ct, it, bm, cm in rows:
         print(f"| {n:,} | {mb:.0f} | {bt:.2f} | {ft:.2f} | {ct:.2f} | {ct / bt:.2f}x | {ct / it:.2f}x "
               f"| {ct / ft:.2f}x | {bm / 1024:.0f} | {cm / 1024:.0f} | {cm / bm:.2f}x |")
+    print()
+    print("| elements | command | s | CPU s | baseline | baseline s | baseline CPU s | ratio | CPU ratio | MiB |")
+    print("|---:|---|---:|---:|---|---:|---:|---:|---:|---:|")
+    for n, name, baseline, t, cpu, bt, bcpu, rss in others:
+        print(f"| {n:,} | {name} | {t:.2f} | {cpu:.2f} | {baseline} | {bt:.2f} | {bcpu:.2f} | {t / bt:.2f}x "
+              f"| {cpu / bcpu:.2f}x | {rss / 1024:.0f} |")
 
 
 if __name__ == "__main__":

@@ -98,6 +98,8 @@ class ModelArrays:
         self.rel_names: list[str] = list(dict.fromkeys(relations))
         self.rel_code = {name: code for code, name in enumerate(self.rel_names)}
         self.rel = np.fromiter(map(self.rel_code.__getitem__, relations), dtype=np.int32, count=len(relations))
+        # coverage.evaluate_codes' results per declaration object (computed once per model).
+        self.coverage_cache: dict[int, tuple[object, tuple[np.ndarray, ...]]] = {}
 
     def _codes(self, strings: Sequence[str | None]) -> np.ndarray:
         """Codes of ``strings``: element codes, ghost codes for unknown names, -1 for None."""

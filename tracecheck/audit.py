@@ -387,9 +387,9 @@ def build_evidence(
         "result_attribute": settings.result_attribute,
         "fail_under": settings.fail_under,
         "counts": {
-            "elements": len(model.elements),
-            "distinct_elements": len(model.by_id),
-            "links": len(model.links),
+            "elements": model.element_count,
+            "distinct_elements": model.arrays.n,
+            "links": model.link_count,
             "by_kind": dict(sorted(model.kinds.items())),
             "declarations": len(declarations),
             "test_results": _test_results(model, settings.result_attribute),

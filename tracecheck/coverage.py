@@ -78,19 +78,20 @@ def counterparts(model: Model, element_id: str, condition: Condition) -> set[str
     Links whose other end is missing, has a kind outside ``condition.kinds``, or is the
     element itself do not count.
     """
-    by_id = model.by_id
+    # Links by end from the integer codes (no Link objects: the coverage report asks
+    # this for every element in scope).
+    from tracecheck.diff.sides import side_of  # noqa: PLC0415  (diff imports this module)
+
+    side = side_of(model)
     if condition.direction == "incoming":
-        links = model.incoming.get(element_id, ())
-        ends = (link.source for link in links if link.relation in condition.relations)
+        ends = (s for s, _, r in side.incoming(element_id) if r in condition.relations)
     else:
-        links = model.outgoing.get(element_id, ())
-        ends = (link.target for link in links if link.relation in condition.relations)
+        ends = (t for _, t, r in side.outgoing(element_id) if r in condition.relations)
     found = set()
     for end in ends:
-        other = by_id.get(end)
-        if other is None or end == element_id:
+        if end not in side or end == element_id:
             continue
-        if condition.kinds is None or other.kind in condition.kinds:
+        if condition.kinds is None or side.kind(end) in condition.kinds:
             found.add(end)
     return found
 
@@ -115,8 +116,24 @@ def evaluate_codes(model: Model, declaration: Declaration) -> tuple[np.ndarray, 
 
     For callers that need only part of the answer (the ``coverage`` rule reports the
     uncovered): turning every covered code into a sorted id costs more than the count.
+
+    Computed once per model and declaration object: the ``coverage`` rule and the
+    diff's before/after table ask for the same declarations of the same model. The
+    arrays returned are read-only.
     """
     arrays = model.arrays
+    cache = arrays.coverage_cache
+    hit = cache.get(id(declaration))
+    if hit is not None and hit[0] is declaration:
+        return hit[1]
+    result = _evaluate_codes(arrays, declaration)
+    for codes in result:
+        codes.flags.writeable = False
+    cache[id(declaration)] = (declaration, result)  # keeps the key's object alive
+    return result
+
+
+def _evaluate_codes(arrays: ModelArrays, declaration: Declaration) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     code = arrays.kind_code.get(declaration.kind)
     if code is None:
         empty = np.zeros(0, dtype=np.int64)

@@ -30,8 +30,8 @@ from tracecheck.rules.engine import Finding, run_rules, sort_key
 __all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "FILE_STATUSES"]
 
 FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
-# Models at least this large (elements + links) check their base side in a forked child
-# while the parent diffs; below it the fork costs more than it saves.
+# Models at least this large (elements + links) check both sides in a forked child while
+# the parent diffs; below it the fork costs more than it saves.
 FORK_MIN = 20_000
 
 
@@ -81,22 +81,27 @@ def _inputs(model: Model, data: bytes | None, config: Config, role: str) -> list
 def compare_file(sides: FileSides, config: Config) -> FileOutcome:
     """Check both sides of one model file and compare their findings by fingerprint.
 
-    For a large modified model the base side's rules run in a forked child while this
-    process checks head and diffs (:mod:`tracecheck.background`); the result is the same.
+    For a large modified model the rules of both sides run in a forked child while this
+    process diffs (:mod:`tracecheck.background`); the result is the same.
     """
     status = _status(sides)
     inputs = [] if sides.head is None else _inputs(sides.head, sides.head_data, config, "model")
     if status == "unchanged":
         return FileOutcome(sides.path, status, run_rules(sides.head, config), [], [], None, inputs)
-    pending = None
-    if sides.base is not None:
-        base_model = sides.base
-        pending = background.start(lambda: run_rules(base_model, config),
-                                   fork=status == "modified" and _big(base_model))
+    if status == "modified" and _big(sides.base):
+        # Both sides' rules in a forked child while this process diffs: the diff is the
+        # longest step, and the rules of both sides together take less.
+        base_model, head_model = sides.base, sides.head
+        pending = background.start(lambda: (run_rules(base_model, config), run_rules(head_model, config)))
         inputs += _inputs(base_model, sides.base_data, config, "base")
+        diff = _diff(sides, config)
+        base, head = pending.result()
+        return _outcome(sides, status, head, base, diff, inputs)
+    if sides.base is not None:
+        inputs += _inputs(sides.base, sides.base_data, config, "base")
     head = [] if sides.head is None else run_rules(sides.head, config)
     diff = None if sides.head is None else _diff(sides, config)
-    base = [] if pending is None else pending.result()
+    base = [] if sides.base is None else run_rules(sides.base, config)
     if status == "deleted":
         note = (f"{sides.path}: deleted on head; its {len(base)} finding(s) at base are not "
                 "counted as resolved (removing a model export fixes nothing).")
@@ -105,7 +110,7 @@ def compare_file(sides: FileSides, config: Config) -> FileOutcome:
 
 
 def _big(model: Model) -> bool:
-    return len(model.elements) + len(model.links) >= FORK_MIN
+    return model.element_count + model.link_count >= FORK_MIN  # counts without building objects
 
 
 def _diff(sides: FileSides, config: Config) -> dict[str, Any]:

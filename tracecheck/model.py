@@ -187,13 +187,23 @@ class Model:
     @property
     def elements(self) -> tuple[Element, ...]:
         if self._elements is None:
-            self._materialise()
+            # Columns that can build one side alone spare the links (most of the objects)
+            # for readers of elements only, such as the coverage report.
+            build = getattr(self._columns, "materialise_elements", None)
+            if build is None:
+                self._materialise()
+            else:
+                self._elements = build()
         return self._elements  # type: ignore[return-value]
 
     @property
     def links(self) -> tuple[Link, ...]:
         if self._links is None:
-            self._materialise()
+            build = getattr(self._columns, "materialise_links", None)
+            if build is None:
+                self._materialise()
+            else:
+                self._links = build()
         return self._links  # type: ignore[return-value]
 
     @elements.setter
@@ -272,6 +282,20 @@ class Model:
         arrays = self.arrays
         index = arrays.position.get(element_id)
         return None if index is None else arrays.kind_names[arrays.kind[index]]
+
+    def element_content(self, element_id: str) -> Element | None:
+        """The first element with ``element_id``, for reading its fields (``None`` if none).
+
+        Builds this one object when the model has not materialised its elements (the
+        column source may then leave its ``location`` unset: a location costs a scan of
+        the whole file), so comparing a few elements of a large model stays cheap.
+        """
+        if self._elements is None:
+            getter = getattr(self._columns, "element_content", None)
+            if getter is not None:
+                index = self.arrays.position.get(element_id)
+                return None if index is None else getter(int(self.arrays.first[index]))
+        return self.by_id.get(element_id)
 
     def location_of(self, element_id: str) -> Location | None:
         """Location of the first element with ``element_id`` (``None`` if there is none)."""

@@ -13,6 +13,7 @@ from tracecheck.collection import collection_paused
 from tracecheck.commands.common import Streams, emit, load
 from tracecheck.commands.outcome import apply_review, ci_uri, step_summary
 from tracecheck.report import RenderOptions, render
+from tracecheck.report.progress import late_progress, progress_enabled
 from tracecheck.rules import rules
 
 __all__ = ["run"]
@@ -44,8 +45,11 @@ def run(
 def _run(spec, fmt, output, config_option, input_format, fail_on, options, streams,
          baseline, waivers_option, today_option) -> int:
     known = load_baseline(Path(baseline)) if baseline else None  # a bad baseline fails first
-    loaded = load(spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
-    result = check_model(loaded.model, loaded.source.data, loaded.config, fail_on=fail_on)
+    with late_progress("check", enabled=progress_enabled(options.quiet)) as step:
+        step(0.0, f"reading {spec}")
+        loaded = load(spec, config_option=config_option, input_format=input_format, stdin=streams.stdin)
+        step(0.6, "rules")
+        result = check_model(loaded.model, loaded.source.data, loaded.config, fail_on=fail_on)
     old, summary = set(), None
     if known is not None:  # findings the baseline lists may use a waiver but are not reported
         kept, summary = apply_baseline(result.findings, known)

@@ -15,6 +15,7 @@ import os
 from pathlib import Path
 
 from tracecheck import gitsource
+from tracecheck.collection import collection_paused
 from tracecheck.commands.common import Streams, emit, resolve_config
 from tracecheck.commands.outcome import apply_review, step_summary
 from tracecheck.config import Config
@@ -22,6 +23,7 @@ from tracecheck.errors import InputError, UsageError
 from tracecheck.formats import read_model
 from tracecheck.gate import FileSides, GateResult, compare_file, sorted_findings
 from tracecheck.report import RenderOptions, render
+from tracecheck.report.progress import late_progress, progress_enabled
 from tracecheck.rules import rules
 
 __all__ = ["run", "choose_base"]
@@ -124,6 +126,15 @@ def run(
 ) -> int:
     streams = streams or Streams.default()
     options = options or RenderOptions()
+    # Each file's two models are freed by reference counting once compared; the cyclic
+    # collector stays paused until then, so it never walks them (tracecheck.collection).
+    with collection_paused():
+        return _run(paths, base, head, exact_base, fmt, output, config_option, input_format, fail_on,
+                    waivers_option, today_option, options, streams, embedding)
+
+
+def _run(paths, base, head, exact_base, fmt, output, config_option, input_format, fail_on,
+         waivers_option, today_option, options, streams, embedding) -> int:
     cwd = Path.cwd()
     root = gitsource.repo_root(cwd)
     relative = _paths(paths, cwd)
@@ -131,8 +142,18 @@ def run(
     base_commit, base_info = choose_base(base, head, exact_base, cwd)
     streams.stderr.write(f"tracecheck gate: base is the {base_info['how']}: {base_commit[:12]}\n")
     config = resolve_config(config_option, (root / relative[0]).parent)
-    sides = [_sides(p, root, base_commit, head, config, input_format) for p in relative]
-    outcomes = [compare_file(one, config) for one in sides]
+    outcomes = []
+    checks: tuple = ()
+    absent: tuple[str, ...] = ()
+    with late_progress("gate", enabled=progress_enabled(options.quiet)) as step:
+        for n, path in enumerate(relative):
+            step(n / len(relative), f"reading {path}")
+            sides = _sides(path, root, base_commit, head, config, input_format)
+            step((n + 0.5) / len(relative), f"comparing {path}")
+            outcomes.append(compare_file(sides, config))
+            more_checks, more_absent = _embedding_checks(embedding, [sides])
+            checks, absent = checks + more_checks, absent + more_absent
+            del sides  # each file's models are freed before the next is read
     old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
     review = apply_review(
         [f for o in outcomes for f in o.head_findings], config, cwd,
@@ -141,7 +162,6 @@ def run(
     standing = {id(f) for f in review.findings}
     outcomes = [dataclasses.replace(o, new=[f for f in o.new if id(f) in standing]) for o in outcomes]
     uris = {i["path"]: o.path for o in outcomes for i in o.inputs}
-    checks, absent = _embedding_checks(embedding, sides)
     result = GateResult(
         findings=review.findings,
         inputs=[i for o in outcomes for i in o.inputs] + review.config_inputs(config),

@@ -6,8 +6,11 @@ call it); :class:`DiffResult` is what the renderers read.
 
 from __future__ import annotations
 
+import operator
 from collections import Counter
+from collections.abc import Mapping
 from dataclasses import dataclass, field
+from itertools import chain, compress, repeat
 from typing import Any
 
 from tracecheck.config import Config
@@ -15,6 +18,7 @@ from tracecheck.coverage import evaluate_all
 from tracecheck.diff.impact import impact_rules, impacted
 from tracecheck.diff.matching import Matching, MatchOptions, match_elements
 from tracecheck.diff.picture import Picture, neighbourhood_picture
+from tracecheck.diff.sides import Side, side_of
 from tracecheck.diff.structural import field_changes, link_changes, moves
 from tracecheck.model import Element, Model
 from tracecheck.rules.engine import run_rules
@@ -93,23 +97,64 @@ def _same_fields(a: Element, b: Element) -> bool:
         map(type, b.attributes.values()))
 
 
+def _same_types(x: Mapping[str, Any], y: Mapping[str, Any]) -> bool:
+    """Two equal attribute maps with keys in the same order and values of the same types."""
+    return list(x) == list(y) and list(map(type, x.values())) == list(map(type, y.values()))
+
+
+def _same_attribute_types(olds: list[Mapping[str, Any]], news: list[Mapping[str, Any]]) -> bool:
+    """For pairwise equal items: True when every pair's attribute keys come in the same
+    order with values of the same types. All pairs at once, in C-level passes over the
+    concatenated keys and value types (equal maps have equal lengths, so they align)."""
+    def attributes(items):
+        return [x or {} for x in map(dict.get, items, repeat("attributes"))]
+
+    def types(maps):
+        return list(map(type, chain.from_iterable(map(dict.values, maps))))
+
+    a, b = attributes(olds), attributes(news)
+    return list(chain.from_iterable(a)) == list(chain.from_iterable(b)) and types(a) == types(b)
+
+
+def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[str, str]]:
+    """Matched pairs whose fields may differ, sorted by new id.
+
+    Most matched pairs are unchanged. When the reader kept the decoded source items, a
+    pair whose items are equal (one C-level dict comparison: equal kind, name, text,
+    parent and attributes) and whose attribute values have the same types is skipped
+    without building an element; the others go through a cheap equality on the
+    compared fields before the field-by-field one.
+    """
+    pairs = list(mapping.items())
+    old_items, new_items = old.items(list(mapping)), new.items(list(mapping.values()))
+    if old_items is not None and new_items is not None:
+        equal = list(map(operator.eq, old_items, new_items))
+        if _same_attribute_types(list(compress(old_items, equal)), list(compress(new_items, equal))):
+            pairs = list(compress(pairs, map(operator.not_, equal)))
+        else:
+            pairs = [
+                pair for pair, same, a, b in zip(pairs, equal, old_items, new_items, strict=True)
+                if not (same and (not (x := a.get("attributes")) or _same_types(x, b["attributes"])))
+            ]
+    candidates = [(o, n) for o, n in pairs if not _same_fields(old.element(o), new.element(n))]
+    return sorted(candidates, key=lambda p: p[1])
+
+
 def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list]:
     mapping = matching.mapping
     image = set(mapping.values())
     modified = []
-    # Most matched pairs are unchanged: a cheap equality on the compared fields skips
-    # them before the field-by-field comparison.
-    candidates = [(o, n) for o, n in mapping.items() if not _same_fields(old.by_id[o], new.by_id[n])]
-    for old_id, new_id in sorted(candidates, key=lambda p: p[1]):
-        changes = field_changes(old.by_id[old_id], new.by_id[new_id])
+    old_side, new_side = side_of(old), side_of(new)
+    for old_id, new_id in _changed_pairs(old_side, new_side, mapping):
+        changes = field_changes(old_side.element(old_id), new_side.element(new_id))
         if changes:
             entry: dict[str, Any] = {"id": new_id, "changes": changes}
             if old_id != new_id:
                 entry["old_id"] = old_id
             modified.append(entry)
     return {
-        "added": sorted(i for i in new.by_id if i not in image),
-        "removed": sorted(i for i in old.by_id if i not in mapping),
+        "added": sorted(i for i in new_side.ids if i not in image),
+        "removed": sorted(i for i in old_side.ids if i not in mapping),
         "modified": modified,
         "moved": moves(old, new, mapping),
         "reidentified": [{"old": o, "new": n, "score": s} for o, n, s in matching.reidentified],
@@ -170,7 +215,8 @@ def diff_models(
     elements = _element_lists(old, new, matching)
     changed_ids = set(elements["added"]) | set(elements["removed"]) | {
         e.get("id", e.get("new")) for c in ("modified", "moved", "reidentified") for e in elements[c]}
-    kinds = {i: (new.by_id.get(i) or old.by_id[i]).kind for i in changed_ids}
+    old_side, new_side = side_of(old), side_of(new)
+    kinds = {i: (new_side if i in new_side else old_side).kind(i) for i in changed_ids}
     links = link_changes(old, new, matching.mapping)
     impact = _impact(old, new, elements, matching.mapping, config)
     return DiffResult(
@@ -182,7 +228,7 @@ def diff_models(
         _coverage(old, new, config) if with_checks else {},
         _findings(old, new, config) if with_checks else {"new": [], "resolved": []},
         kinds,
-        {"old_elements": len(old.by_id), "new_elements": len(new.by_id),
-         "old_links": len(old.links), "new_links": len(new.links)},
+        {"old_elements": len(old_side), "new_elements": len(new_side),
+         "old_links": old.link_count, "new_links": new.link_count},
         neighbourhood_picture(old, new, elements, links, impact) if with_picture else None,
     )

@@ -14,6 +14,7 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
 from tracecheck.config import Config
+from tracecheck.diff.sides import Side, side_of
 from tracecheck.errors import ConfigError
 from tracecheck.model import Model
 
@@ -61,16 +62,19 @@ def impact_rules(config: Config) -> tuple[ImpactRule, ...]:
     return tuple(rules)
 
 
-def _steps(model: Model, element_id: str, rules: Iterable[ImpactRule]):
+def _steps(side: Side, element_id: str, rules: Iterable[ImpactRule]):
+    incoming = outgoing = None
     for rule in rules:
         if rule.direction == "incoming":
-            for link in model.incoming.get(element_id, ()):
-                if link.relation == rule.relation:
-                    yield rule, link.source, link
+            incoming = side.incoming(element_id) if incoming is None else incoming
+            for link in incoming:
+                if link[2] == rule.relation:
+                    yield rule, link[0], link
         else:
-            for link in model.outgoing.get(element_id, ()):
-                if link.relation == rule.relation:
-                    yield rule, link.target, link
+            outgoing = side.outgoing(element_id) if outgoing is None else outgoing
+            for link in outgoing:
+                if link[2] == rule.relation:
+                    yield rule, link[1], link
 
 
 def impacted(model: Model, start: str, rules: tuple[ImpactRule, ...]) -> dict[str, list]:
@@ -87,15 +91,16 @@ def impacted(model: Model, start: str, rules: tuple[ImpactRule, ...]) -> dict[st
         impacted id -> path, a list of links ``{"source","target","relation"}`` in the
         order walked.
     """
+    side = side_of(model)  # links by end from the integer codes, no Link objects
     paths: dict[str, list] = {start: []}
     queue = deque([start])
     while queue:
         here = queue.popleft()
-        steps = sorted(_steps(model, here, rules), key=lambda s: (s[1], s[0]))
+        steps = sorted(_steps(side, here, rules), key=lambda s: (s[1], s[0]))
         for rule, other, link in steps:
-            if other in paths or other not in model.by_id:
+            if other in paths or other not in side:
                 continue
-            paths[other] = paths[here] + [{"source": link.source, "target": link.target, "relation": link.relation}]
+            paths[other] = paths[here] + [{"source": link[0], "target": link[1], "relation": link[2]}]
             if rule.transitive:
                 queue.append(other)
     del paths[start]

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import networkx as nx
 
+from tracecheck.diff.sides import Side, side_of
 from tracecheck.model import Element, Model
 
 __all__ = [
@@ -134,22 +135,23 @@ def _content(element: Element) -> frozenset[str]:
     return tokens(element.name) | tokens(element.text)
 
 
-def _neighbourhood(model: Model, element_id: str, translate: Mapping[str, str]) -> frozenset:
+def _neighbourhood(model: Model | Side, element_id: str, translate: Mapping[str, str]) -> frozenset:
     """(direction, relation, other end) with the other end in the common id space.
 
     Only ends that ``translate`` knows (matched elements) count, so a neighbour that is
     itself unmatched says nothing either way.
     """
+    side = model if isinstance(model, Side) else side_of(model)
     found = set()
-    for link in model.outgoing.get(element_id, ()):
-        if link.target in translate:
-            found.add(("out", link.relation, translate[link.target]))
-    for link in model.incoming.get(element_id, ()):
-        if link.source in translate:
-            found.add(("in", link.relation, translate[link.source]))
-    element = model.by_id[element_id]
-    if element.parent in translate:
-        found.add(("parent", "", translate[element.parent]))
+    for _, target, relation in side.outgoing(element_id):
+        if target in translate:
+            found.add(("out", relation, translate[target]))
+    for source, _, relation in side.incoming(element_id):
+        if source in translate:
+            found.add(("in", relation, translate[source]))
+    parent = side.parent(element_id)
+    if parent in translate:
+        found.add(("parent", "", translate[parent]))
     return frozenset(found)
 
 
@@ -224,12 +226,12 @@ def similarity(a: _Profile, b: _Profile, options: MatchOptions, rarity: Mapping[
     return round(sum(w * s for w, s in used) / total, 4)
 
 
-def _profiles(model: Model, ids: Iterable[str], translate: Mapping[str, str]) -> dict[str, _Profile]:
+def _profiles(side: Side, ids: Iterable[str], translate: Mapping[str, str]) -> dict[str, _Profile]:
     profiles = {}
     for element_id in ids:
-        element = model.by_id[element_id]
+        element = side.element(element_id)
         profiles[element_id] = _Profile(
-            element, _content(element), _attribute_items(element), _neighbourhood(model, element_id, translate)
+            element, _content(element), _attribute_items(element), _neighbourhood(side, element_id, translate)
         )
     return profiles
 
@@ -333,14 +335,18 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     .. [2] J. Edmonds, "Paths, trees, and flowers", Canad. J. Math. 17, 1965.
     """
     options = options or MatchOptions()
-    mapping = {i: i for i in old.by_id if i in new.by_id}
-    old_left = [i for i in old.by_id if i not in mapping]
-    new_left = [i for i in new.by_id if i not in mapping]
+    # Read from the columns and integer codes (diff/sides.py): no element object is
+    # built except for the unmatched elements that are scored.
+    old_side, new_side = side_of(old), side_of(new)
+    in_new = new_side.position
+    mapping = {i: i for i in old_side.ids if i in in_new}
+    old_left = [i for i in old_side.ids if i not in mapping]
+    new_left = [i for i in new_side.ids if i not in mapping]
     if not old_left or not new_left:
         return Matching(mapping, [])
     identity = {i: i for i in mapping}
-    old_profiles = _profiles(old, old_left, identity)
-    new_profiles = _profiles(new, new_left, identity)
+    old_profiles = _profiles(old_side, old_left, identity)
+    new_profiles = _profiles(new_side, new_left, identity)
     rarity = rarity_weights([*old_profiles.values(), *new_profiles.values()])
     scored = []
     for old_id, pool in sorted(_candidates(old_profiles, new_profiles).items()):

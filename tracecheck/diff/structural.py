@@ -6,8 +6,12 @@ import difflib
 import re
 from collections import defaultdict
 from collections.abc import Mapping
+from itertools import repeat
 from typing import Any
 
+import numpy as np
+
+from tracecheck.diff.sides import Side, Triple, side_of
 from tracecheck.model import Element, Model
 
 __all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
@@ -91,9 +95,10 @@ def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
 def moves(old: Model, new: Model, mapping: Mapping[str, str]) -> list[dict[str, str | None]]:
     """Matched elements whose parent, seen through the mapping, is a different element."""
     found = []
+    old_parent, new_parent = side_of(old).parent, side_of(new).parent
     for old_id, new_id in mapping.items():
-        before = old.by_id[old_id].parent
-        after = new.by_id[new_id].parent
+        before = old_parent(old_id)
+        after = new_parent(new_id)
         translated = None if before is None else mapping.get(before, before)
         if translated != after:
             found.append({"id": new_id, "old_parent": before, "new_parent": after})
@@ -113,23 +118,12 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     same two ends when each is the only one there; both stay in ``added``/``removed``
     so those two lists remain the plain set difference of triples.
     """
-    # Plain set algebra on triples; only links touching a re-identified element need
-    # carrying into the new ids (matched ids are mostly unchanged).
     renamed = {o: n for o, n in mapping.items() if o != n}
-    before = {(lk.source, lk.target, lk.relation) for lk in old.links}
-    origin: dict[tuple[str, str, str], tuple[str, str, str]] = {}
-    if renamed:
-        touched = {t for t in before if t[0] in renamed or t[1] in renamed}
-        origin = {(renamed.get(s, s), renamed.get(t, t), r): (s, t, r) for s, t, r in touched}
-        before -= touched
-        before |= origin.keys()
-    now = {(lk.source, lk.target, lk.relation) for lk in new.links}
-    lost = before - now
-    removed = sorted(origin.get(k, k) for k in lost)
-    added = sorted(now - before)
+    lost, origin, added = _compare_links(side_of(old), side_of(new), mapping, renamed)
+    removed = sorted(origin[k] for k in lost)
     gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
     for key in lost:
-        gone[key[:2]].append(origin.get(key, key))
+        gone[key[:2]].append(origin[key])
     came: dict[tuple[str, str], list[str]] = defaultdict(list)
     for s, t, r in added:
         came[(s, t)].append(r)
@@ -143,3 +137,50 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
         "removed": [link_json(t) for t in removed],
         "relation_changed": changed,
     }
+
+
+def _absent(keys: np.ndarray, others: np.ndarray) -> np.ndarray:
+    """Mask of ``keys`` not in ``others`` (one sort and a binary search: ``np.isin``
+    sorts both sides with their inverse, several times slower here)."""
+    if len(others) == 0:
+        return np.ones(len(keys), dtype=bool)
+    ordered = np.sort(others)
+    found = np.minimum(np.searchsorted(ordered, keys), len(ordered) - 1)
+    return ordered[found] != keys
+
+
+def _compare_links(old: Side, new: Side, mapping: Mapping[str, str], renamed: Mapping[str, str]):
+    """The set algebra of :func:`link_changes` on integer keys.
+
+    Both models' names (element ids and dangling ends) and relations get codes in one
+    space, the old names after mapping (an end never matched keeps its id); each link
+    becomes one integer, and two sorted look-ups find the links whose triple the
+    other side lacks. Strings are touched only for those.
+
+    Returns the lost triples in the new id space, the old triple each stands for (a
+    link touching a renamed element where several collapse into one, else the first
+    in file order), and the added triples, sorted.
+    """
+    oa, na = old.arrays, new.arrays
+    names = dict(zip(na.names, range(len(na.names)), strict=True))
+    translated = list(map(mapping.get, oa.names, oa.names)) if renamed else oa.names
+    codes = np.fromiter(map(names.get, translated, repeat(-1)), dtype=np.int64, count=len(translated))
+    for index in np.flatnonzero(codes < 0).tolist():  # names only the old side has
+        codes[index] = names.setdefault(translated[index], len(names))
+    relations = dict(zip(na.rel_names, range(len(na.rel_names)), strict=True))
+    for name in oa.rel_names:
+        relations.setdefault(name, len(relations))
+    old_rel = np.array([relations[r] for r in oa.rel_names], dtype=np.int64)
+    size, kinds = len(names), max(len(relations), 1)
+    old_keys = (codes[oa.src] * size + codes[oa.tgt]) * kinds + old_rel[oa.rel] if len(oa.src) else oa.src
+    new_keys = (na.src * size + na.tgt) * kinds + na.rel
+    oc, nc = old.columns, new.columns
+    origin: dict[Triple, Triple] = {}
+    for index in np.flatnonzero(_absent(old_keys, new_keys)).tolist():
+        s, t, r = oc.link_sources[index], oc.link_targets[index], oc.link_relations[index]
+        key = (renamed.get(s, s), renamed.get(t, t), r)
+        if key not in origin or ((s in renamed or t in renamed) and origin[key] == key):
+            origin[key] = (s, t, r)
+    added = sorted({(nc.link_sources[i], nc.link_targets[i], nc.link_relations[i])
+                    for i in np.flatnonzero(_absent(new_keys, old_keys)).tolist()})
+    return origin.keys(), origin, added
