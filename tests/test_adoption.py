@@ -7,8 +7,6 @@ import json
 import re
 from pathlib import Path
 
-import pytest
-
 from tests.conftest import write_thread
 from tracecheck import hooks
 from tracecheck.waivers import parse_waivers
