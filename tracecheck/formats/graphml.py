@@ -255,23 +255,58 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_N + "graphml", format_name="GraphML")
-    release = xmlsafe.release
+    # The hot loop: most records are edges with string data only (the relation). Those
+    # are read inline, with the list appends and look-ups bound once; anything else
+    # (typed or undeclared keys, key defaults, a missing end or relation) goes through
+    # Reader.edge, which also words the errors.
+    columns = reader.columns
+    keys_get, relation_key, edge_defaults = reader.keys.get, reader.relation_key, reader.defaults["edge"]
+    add_source, add_target, add_relation = (columns.link_sources.append, columns.link_targets.append,
+                                            columns.link_relations.append)
+    add_id, add_attributes, add_line = columns.link_ids.append, columns.link_attrs.append, columns.link_lines.append
+    node, edge = reader.node, reader.edge
     for _event, elem in events:
         tag = elem.tag
-        if tag == _NODE:
-            reader.node(elem)
-            release(elem)
-        elif tag == _EDGE:
-            reader.edge(elem)
-            release(elem)
+        if tag == _EDGE:
+            get = elem.get
+            source, target = get("source"), get("target")
+            fast = source and target and reader.meta_done and not edge_defaults
+            if fast:
+                values: dict[str, Any] = {}
+                for child in elem.iterchildren(_DATA):
+                    key = keys_get(child.get("key"))
+                    if key is None or not key.plain:
+                        fast = False
+                        break
+                    values[key.name] = child.text or ""
+                relation = fast and values.pop(relation_key, None)
+            if fast and relation:
+                add_source(source)
+                add_target(target)
+                add_relation(relation)
+                add_id(get("id"))
+                add_attributes(values)
+                add_line(elem.sourceline)
+            else:
+                edge(elem)
+        elif tag == _NODE:
+            node(elem)
         elif tag == _KEY:
             reader.add_key(elem)
+            continue
         elif tag == _GRAPH:
             if not reader.meta_done:
                 reader.graph_meta(elem)
+            continue
         else:
             raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
-    return Model.from_columns(reader.columns, meta=reader.meta, origin=origin, format="graphml")
+        # xmlsafe.release, inline: free the record and the siblings read before it
+        elem.clear(keep_tail=False)
+        parent = elem.getparent()
+        if parent is not None:
+            while elem.getprevious() is not None:
+                del parent[0]
+    return Model.from_columns(columns, meta=reader.meta, origin=origin, format="graphml")
 
 
 # --- writing ---------------------------------------------------------------------------
