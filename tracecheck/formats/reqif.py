@@ -284,7 +284,8 @@ class _Reader:
         if type_ref not in self.types:
             raise self.fail(line, f"{what} refers to an unknown SPEC-RELATION-TYPE {type_ref!r}.")
         _relation, defaults = self.types[type_ref]
-        attributes = self.values(values, defaults, what)
+        # Most relations carry no values and their types no defaults: skip the call.
+        attributes = self.values(values, defaults, what) if values is not None or defaults else {}
         link_id = exact_source = exact_target = None
         if attributes:  # most relations carry none: skip the look-ups
             link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
@@ -437,8 +438,25 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_R + "REQ-IF", format_name="ReqIF 1.2")
+    # Relations, then objects, are most records: test for them first with bound methods.
+    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
     for _event, elem in events:
-        _dispatch(reader, elem)
+        tag = elem.tag
+        if tag == _SPEC_RELATION:
+            spec_relation(elem)
+        elif tag == _SPEC_OBJECT:
+            spec_object(elem)
+        elif tag == _HIERARCHY:
+            hierarchy_end(elem)
+        else:
+            _dispatch(reader, elem)
+            continue
+        # xmlsafe.release, inline: free the record and the siblings read before it
+        elem.clear(keep_tail=False)
+        parent = elem.getparent()
+        if parent is not None:
+            while elem.getprevious() is not None:
+                del parent[0]
     return reader.model()
 
 
