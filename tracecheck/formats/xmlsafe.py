@@ -29,6 +29,7 @@ from typing import Any
 
 from lxml import etree
 
+from tracecheck.collection import collection_paused
 from tracecheck.errors import InputError
 from tracecheck.model import Element, Link, Location
 
@@ -257,6 +258,10 @@ class RecordColumns:
                     self.link_ids[index], self.link_attrs[index], self.link_location(index))
 
     def materialise(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]:
+        with collection_paused():  # many long-lived objects, no cycles: see tracecheck.collection
+            return self._build()
+
+    def _build(self) -> tuple[tuple[Element, ...], tuple[Link, ...]]:
         origin = repeat(self.origin)
         elements = tuple(map(Element, self.element_ids, self.element_kinds, self.element_names,
                              self.element_texts, self.element_parents, self.element_attrs,
