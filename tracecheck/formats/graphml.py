@@ -45,7 +45,7 @@ from tracecheck.formats.mapping import (
     parse_bool,
     value_type,
 )
-from tracecheck.model import Element, Link, Location, Model
+from tracecheck.model import Element, Link, Model
 
 __all__ = ["GraphML", "parse", "write", "NAMESPACE", "OPTIONS"]
 
@@ -83,6 +83,7 @@ class _Key:
     convert: Any
     as_json: bool
     default: Any
+    plain: bool  # a string key: its data is taken as written
 
 
 class _Reader:
@@ -98,8 +99,10 @@ class _Reader:
         self.options = adapter_options(options, "graphml", OPTIONS)
         self.names = tuple(self.options[f] for f in _FIELDS)
         self.keys: dict[str, _Key] = {}
-        self.elements: list[Element] = []
-        self.links: list[Link] = []
+        self.columns = xmlsafe.RecordColumns(origin)
+        self.relation_key = self.options["relation"]
+        self.graph: Any = None  # the graph holding the last node read, and the node owning it
+        self.graph_owner: str | None = None
         self.meta: dict[str, Any] = {}
         self.meta_done = False
         self.skipped: set[str] = set()  # keys without attr.name
@@ -123,11 +126,12 @@ class _Reader:
             raise self.fail(elem.sourceline, f"key {key_id!r} has unknown attr.type {type_name!r}.")
         desc = elem.find(_DESC)
         as_json = desc is not None and (desc.text or "").strip() == JSON_MARK
-        key = _Key(name, elem.get("for", "all"), _CONVERT[type_name], as_json, None)
+        convert = _CONVERT[type_name]
+        key = _Key(name, elem.get("for", "all"), convert, as_json, None, convert is str and not as_json)
         default = elem.find(_DEFAULT)
         if default is not None:
             value = self.value(key, default.text or "", default.sourceline, f"the default of key {key_id!r}")
-            key = _Key(key.name, key.domain, key.convert, key.as_json, value)
+            key = _Key(key.name, key.domain, key.convert, key.as_json, value, key.plain)
             for domain in ("node", "edge", "graph"):
                 if key.domain in (domain, "all"):
                     self.defaults[domain].append((name, value))
@@ -148,17 +152,21 @@ class _Reader:
         values: dict[str, Any] = {}
         keys = self.keys
         for child in elem.iterchildren(_DATA):
-            key = keys.get(child.get("key"))
+            key_id = child.get("key")
+            key = keys.get(key_id)
             if key is None:
-                if child.get("key") not in self.skipped:
-                    raise self.fail(child.sourceline, f"data of {what()} refers to undeclared key {child.get('key')!r}.")
+                if key_id not in self.skipped:
+                    raise self.fail(child.sourceline, f"data of {what()} refers to undeclared key {key_id!r}.")
                 continue
-            if key.convert is str and not key.as_json:
+            if key.plain:
                 values[key.name] = child.text or ""
             else:
                 values[key.name] = self.value(key, child.text or "", child.sourceline, what())
-        for name, default in self.defaults[domain]:
-            values.setdefault(name, default)
+        defaults = self.defaults[domain]
+        if defaults:
+            setdefault = values.setdefault
+            for name, default in defaults:
+                setdefault(name, default)
         return values
 
     # --- records ---------------------------------------------------------------------
@@ -172,20 +180,29 @@ class _Reader:
             self.graph_meta(elem.getparent())
         values = self.data(elem, lambda: f"node {node_id!r}", "node")
         kind_key, name_key, text_key, parent_key = self.names
-        kind = values.pop(kind_key, None)
+        pop = values.pop
+        kind = pop(kind_key, None)
         if kind is None or kind == "":
             kind = self.options["default_kind"]
             if not kind:
                 raise self.fail(line, f"node {node_id!r} has no {kind_key!r} data "
                                 "(set formats.graphml.default_kind to supply one).")
-        name, text, parent = values.pop(name_key, None), values.pop(text_key, None), values.pop(parent_key, None)
+        name, text, parent = pop(name_key, None), pop(text_key, None), pop(parent_key, None)
         if parent is None:
-            above = elem.getparent().getparent()
-            if above is not None and above.tag == _NODE:
-                parent = above.get("id")
-        self.elements.append(Element(
-            node_id, str(kind), _text(name), _text(text), _text(parent) or None, values, Location(self.origin, line),
-        ))
+            graph = elem.getparent()
+            if graph is not self.graph:  # the proxy is kept alive, so lxml hands back the same one
+                above = graph.getparent()
+                self.graph = graph
+                self.graph_owner = above.get("id") if above is not None and above.tag == _NODE else None
+            parent = self.graph_owner
+        columns = self.columns
+        columns.element_ids.append(node_id)
+        columns.element_kinds.append(kind if kind.__class__ is str else str(kind))
+        columns.element_names.append(_text(name))
+        columns.element_texts.append(_text(text))
+        columns.element_parents.append(_text(parent) or None)
+        columns.element_attrs.append(values)
+        columns.element_lines.append(line)
 
     def edge(self, elem: Any) -> None:
         line = elem.sourceline
@@ -195,11 +212,17 @@ class _Reader:
         if not self.meta_done:
             self.graph_meta(elem.getparent())
         values = self.data(elem, lambda: f"edge {source!r} -> {target!r}", "edge")
-        relation = values.pop(self.options["relation"], None) or self.options["default_relation"]
+        relation = values.pop(self.relation_key, None) or self.options["default_relation"]
         if not relation:
-            raise self.fail(line, f"edge {source!r} -> {target!r} has no {self.options['relation']!r} data "
+            raise self.fail(line, f"edge {source!r} -> {target!r} has no {self.relation_key!r} data "
                             "(set formats.graphml.default_relation to supply one).")
-        self.links.append(Link(source, target, str(relation), elem.get("id"), values, Location(self.origin, line)))
+        columns = self.columns
+        columns.link_sources.append(source)
+        columns.link_targets.append(target)
+        columns.link_relations.append(relation if relation.__class__ is str else str(relation))
+        columns.link_ids.append(elem.get("id"))
+        columns.link_attrs.append(values)
+        columns.link_lines.append(line)
 
     def graph_meta(self, graph: Any) -> None:
         """Graph-level data of the top graph, read before its children are released."""
@@ -232,23 +255,58 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_N + "graphml", format_name="GraphML")
-    release = xmlsafe.release
+    # The hot loop: most records are edges with string data only (the relation). Those
+    # are read inline, with the list appends and look-ups bound once; anything else
+    # (typed or undeclared keys, key defaults, a missing end or relation) goes through
+    # Reader.edge, which also words the errors.
+    columns = reader.columns
+    keys_get, relation_key, edge_defaults = reader.keys.get, reader.relation_key, reader.defaults["edge"]
+    add_source, add_target, add_relation = (columns.link_sources.append, columns.link_targets.append,
+                                            columns.link_relations.append)
+    add_id, add_attributes, add_line = columns.link_ids.append, columns.link_attrs.append, columns.link_lines.append
+    node, edge = reader.node, reader.edge
     for _event, elem in events:
         tag = elem.tag
-        if tag == _NODE:
-            reader.node(elem)
-            release(elem)
-        elif tag == _EDGE:
-            reader.edge(elem)
-            release(elem)
+        if tag == _EDGE:
+            get = elem.get
+            source, target = get("source"), get("target")
+            fast = source and target and reader.meta_done and not edge_defaults
+            if fast:
+                values: dict[str, Any] = {}
+                for child in elem.iterchildren(_DATA):
+                    key = keys_get(child.get("key"))
+                    if key is None or not key.plain:
+                        fast = False
+                        break
+                    values[key.name] = child.text or ""
+                relation = fast and values.pop(relation_key, None)
+            if fast and relation:
+                add_source(source)
+                add_target(target)
+                add_relation(relation)
+                add_id(get("id"))
+                add_attributes(values)
+                add_line(elem.sourceline)
+            else:
+                edge(elem)
+        elif tag == _NODE:
+            node(elem)
         elif tag == _KEY:
             reader.add_key(elem)
+            continue
         elif tag == _GRAPH:
             if not reader.meta_done:
                 reader.graph_meta(elem)
+            continue
         else:
             raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
-    return Model(reader.elements, reader.links, meta=reader.meta, origin=origin, format="graphml")
+        # xmlsafe.release, inline: free the record and the siblings read before it
+        elem.clear(keep_tail=False)
+        parent = elem.getparent()
+        if parent is not None:
+            while elem.getprevious() is not None:
+                del parent[0]
+    return Model.from_columns(columns, meta=reader.meta, origin=origin, format="graphml")
 
 
 # --- writing ---------------------------------------------------------------------------

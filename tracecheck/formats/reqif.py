@@ -64,7 +64,7 @@ from tracecheck.formats.mapping import (
     parse_bool,
     value_type,
 )
-from tracecheck.model import Element, Link, Location, Model
+from tracecheck.model import Element, Link, Model
 
 __all__ = ["ReqIF", "parse", "write", "NAMESPACE", "XHTML", "OPTIONS", "EPOCH", "MAX_DEPTH"]
 
@@ -284,7 +284,8 @@ class _Reader:
         if type_ref not in self.types:
             raise self.fail(line, f"{what} refers to an unknown SPEC-RELATION-TYPE {type_ref!r}.")
         _relation, defaults = self.types[type_ref]
-        attributes = self.values(values, defaults, what)
+        # Most relations carry no values and their types no defaults: skip the call.
+        attributes = self.values(values, defaults, what) if values is not None or defaults else {}
         link_id = exact_source = exact_target = None
         if attributes:  # most relations carry none: skip the look-ups
             link_id = _as_text(attributes.pop(self.opts["id_attribute"], None))
@@ -325,18 +326,26 @@ class _Reader:
                 raise self.fail(entry.sourceline, f"model entry: {error}.") from None
 
     def model(self) -> Model:
-        origin, ident_to_id, parent_of = self.origin, self.ident_to_id, self.parent_of
+        """The model as columns: Element and Link objects are built only when asked for."""
+        ident_to_id, parent_of = self.ident_to_id, self.parent_of
         names = {ref: self.exact.get(ref, name) for ref, (name, _defaults) in self.types.items()}
-        elements = []
-        for ident, element_id, type_ref, name, text, parent, attributes, line in self.records:
-            if parent is None and ident in parent_of:
-                parent = ident_to_id.get(parent_of[ident], parent_of[ident])
-            elements.append(Element(element_id, names[type_ref], name, text, parent, attributes,
-                                    Location(origin, line)))
-        links = [Link(source, target, names[type_ref], link_id, attributes, Location(origin, line))
-                 for source, target, type_ref, link_id, attributes, line in self.links]
+        columns = xmlsafe.RecordColumns(self.origin)
+        records = self.records
+        if records:
+            idents, columns.element_ids, type_refs, columns.element_names, columns.element_texts, parents, \
+                columns.element_attrs, columns.element_lines = (list(c) for c in zip(*records, strict=True))
+            columns.element_kinds = [names[t] for t in type_refs]
+            if parent_of:
+                for n, (ident, parent) in enumerate(zip(idents, parents, strict=True)):
+                    if parent is None and ident in parent_of:
+                        parents[n] = ident_to_id.get(parent_of[ident], parent_of[ident])
+            columns.element_parents = parents
+        if self.links:
+            columns.link_sources, columns.link_targets, type_refs, columns.link_ids, columns.link_attrs, \
+                columns.link_lines = (list(c) for c in zip(*self.links, strict=True))
+            columns.link_relations = [names[t] for t in type_refs]
         meta = self.meta if self.meta is not None else ({"name": self.title} if self.title else {})
-        return Model(elements, links, meta=meta, origin=origin, format="reqif")
+        return Model.from_columns(columns, meta=meta, origin=self.origin, format="reqif")
 
 
 def _first(elem: Any, tag: str) -> Any:
@@ -429,8 +438,25 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
     reader = _Reader(origin, options or {})
     events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
                                root=_R + "REQ-IF", format_name="ReqIF 1.2")
+    # Relations, then objects, are most records: test for them first with bound methods.
+    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
     for _event, elem in events:
-        _dispatch(reader, elem)
+        tag = elem.tag
+        if tag == _SPEC_RELATION:
+            spec_relation(elem)
+        elif tag == _SPEC_OBJECT:
+            spec_object(elem)
+        elif tag == _HIERARCHY:
+            hierarchy_end(elem)
+        else:
+            _dispatch(reader, elem)
+            continue
+        # xmlsafe.release, inline: free the record and the siblings read before it
+        elem.clear(keep_tail=False)
+        parent = elem.getparent()
+        if parent is not None:
+            while elem.getprevious() is not None:
+                del parent[0]
     return reader.model()
 
 
