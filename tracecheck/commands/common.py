@@ -88,12 +88,14 @@ def _read_csv_pair(source: Source, input_format: str | None, options) -> Model:
     return csvpair.read_pair((source.data, source.origin), (companion.data, companion.origin), options)
 
 
-def atomic_write(path: Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` via a temporary file and a rename.
+def atomic_write(path: Path, data: str | bytes) -> None:
+    """Write ``data`` (text as UTF-8) to ``path`` via a temporary file and a rename.
 
     An existing file is replaced only once the new content is complete on disk; on any
     failure it is left untouched and the temporary file removed.
     """
+    if isinstance(data, str):
+        data = data.encode("utf-8")
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
         raise InputError(f"{path}: the output folder {folder} does not exist.")
@@ -122,9 +124,8 @@ def _umask() -> int:
 def emit(output: str | bytes, destination: str | None, streams: Streams) -> None:
     """Send rendered output to ``-o`` (atomically) or to stdout."""
     if destination and destination != "-":
-        data = output.encode("utf-8") if isinstance(output, str) else output
         try:
-            atomic_write(Path(destination), data)
+            atomic_write(Path(destination), output)
         except PermissionError:
             raise InputError(f"{destination}: permission denied; nothing was written.") from None
         except IsADirectoryError:

@@ -128,7 +128,7 @@ def run(directory: str | None, *, options=None, stdout: TextIO | None = None) ->
     written = []
     for fmt, name in (("json", "check.json"), ("markdown", "check.md")):
         data = render("check", fmt, result, RenderOptions())
-        atomic_write(demo.reports / name, data.encode("utf-8") if isinstance(data, str) else data)
+        atomic_write(demo.reports / name, data)
         written.append(name)
     for step in _EXTRA_STEPS:
         written += step(demo, out, options)

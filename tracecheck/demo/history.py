@@ -20,5 +20,5 @@ def history_step(demo, out: TextIO, options) -> list[str]:
     result = history(MODEL_PATH, cwd=demo.root, stages=list(STAGES), cache=Cache(None, ""))
     out.write(f"\n$ tracecheck history --stages {','.join(STAGES)} {MODEL_PATH}\n")
     out.write(render("history", "text", result, options))
-    atomic_write(demo.reports / "history.html", render("history", "html", result, RenderOptions()).encode("utf-8"))
+    atomic_write(demo.reports / "history.html", render("history", "html", result, RenderOptions()))
     return ["history.html"]

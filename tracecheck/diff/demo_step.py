@@ -38,6 +38,6 @@ def diff_step(demo, out: TextIO, options: RenderOptions) -> list[str]:
     written = []
     for fmt, name in (("html", "diff.html"), ("json", "diff.json")):
         data = render("diff", fmt, result, RenderOptions())
-        atomic_write(demo.reports / name, data.encode("utf-8") if isinstance(data, str) else data)
+        atomic_write(demo.reports / name, data)
         written.append(name)
     return written

@@ -29,7 +29,7 @@ def _model_at(demo, rev: str):
 def _write(demo, name: str, data: str | bytes) -> str:
     from tracecheck.commands.common import atomic_write
 
-    atomic_write(demo.reports / name, data.encode("utf-8") if isinstance(data, str) else data)
+    atomic_write(demo.reports / name, data)
     return name
 
 
