@@ -16,6 +16,7 @@ import numpy as np
 
 from tracecheck.config import Condition, Declaration
 from tracecheck.model import Element, Model
+from tracecheck.sides import side_of
 
 if TYPE_CHECKING:
     from tracecheck.arrays import ModelArrays
@@ -80,8 +81,6 @@ def counterparts(model: Model, element_id: str, condition: Condition) -> set[str
     """
     # Links by end from the integer codes (no Link objects: the coverage report asks
     # this for every element in scope).
-    from tracecheck.diff.sides import side_of  # noqa: PLC0415  (diff imports this module)
-
     side = side_of(model)
     if condition.direction == "incoming":
         ends = (s for s, _, r in side.incoming(element_id) if r in condition.relations)

@@ -18,10 +18,10 @@ from tracecheck.coverage import evaluate_all
 from tracecheck.diff.impact import impact_rules, impacted
 from tracecheck.diff.matching import Matching, MatchOptions, match_elements
 from tracecheck.diff.picture import Picture, neighbourhood_picture
-from tracecheck.diff.sides import Side, side_of
 from tracecheck.diff.structural import field_changes, link_changes, moves
 from tracecheck.model import Element, Model
 from tracecheck.rules.engine import run_rules
+from tracecheck.sides import Side, side_of
 
 __all__ = ["DiffResult", "diff_models", "CAUTION"]
 

@@ -14,9 +14,9 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
 from tracecheck.config import Config
-from tracecheck.diff.sides import Side, side_of
 from tracecheck.errors import ConfigError
 from tracecheck.model import Model
+from tracecheck.sides import Side, side_of
 
 __all__ = ["ImpactRule", "impact_rules", "impacted", "DEFAULT_RULES"]
 

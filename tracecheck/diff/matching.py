@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import networkx as nx
 
-from tracecheck.diff.sides import Side, side_of
 from tracecheck.model import Element, Model
+from tracecheck.sides import Side, side_of
 
 __all__ = [
     "Matching",

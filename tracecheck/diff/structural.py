@@ -11,8 +11,8 @@ from typing import Any
 
 import numpy as np
 
-from tracecheck.diff.sides import Side, Triple, side_of
 from tracecheck.model import Element, Model
+from tracecheck.sides import Side, Triple, side_of
 
 __all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
 

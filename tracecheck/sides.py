@@ -1,4 +1,4 @@
-"""What the diff reads of one model, served from its columns and integer arrays.
+"""What the diff and coverage read of one model, served from its columns and integer arrays.
 
 A model read from thread JSON keeps its elements and links as columns until someone
 asks for the objects (:mod:`tracecheck.model`); building all of them cost more than
@@ -7,7 +7,8 @@ matched element, the fields of the few elements whose content differs, and the l
 of the few elements near a change. :class:`Side` gives exactly
 those: triples come straight from the columns, a link index per end is two stable
 ``argsort`` passes over the integer codes, and an element object is built only when
-its fields are compared.
+its fields are compared. Coverage asks the same link-by-end questions for every
+element in scope, so the view lives beside the model rather than inside diff/.
 """
 
 from __future__ import annotations
