@@ -25,6 +25,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tracecheck import gitsource
+from tracecheck.caution import caution
 from tracecheck.config import Config
 from tracecheck.coverage import evaluate_all
 from tracecheck.diff import diff_models
@@ -50,11 +51,7 @@ __all__ = [
 
 CHURN = ("added", "removed", "modified", "moved", "reidentified")
 SEVERITIES = ("error", "warning", "note")
-CAUTION = (
-    "This history supports, and does not replace, review by qualified people. Tool "
-    "qualification under the applicable standard is the user's responsibility; local "
-    "codes and licensed practice prevail."
-)
+CAUTION = caution("This history supports")
 
 Progress = Callable[[float, str], None]
 

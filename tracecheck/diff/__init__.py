@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from itertools import chain, compress, repeat
 from typing import Any
 
+from tracecheck.caution import caution
 from tracecheck.config import Config
 from tracecheck.coverage import evaluate_all
 from tracecheck.diff.impact import impact_rules, impacted
@@ -25,11 +26,7 @@ from tracecheck.sides import Side, side_of
 
 __all__ = ["DiffResult", "diff_models", "CAUTION"]
 
-CAUTION = (
-    "This diff supports, and does not replace, review by qualified people. Tool "
-    "qualification under the applicable standard is the user's responsibility; local "
-    "codes and licensed practice prevail."
-)
+CAUTION = caution("This diff supports")
 
 _CATEGORIES = ("added", "removed", "modified", "moved", "reidentified")
 

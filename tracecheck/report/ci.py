@@ -17,6 +17,7 @@ from urllib.parse import quote
 
 from lxml import etree
 
+from tracecheck.caution import caution
 from tracecheck.check import CheckResult
 from tracecheck.report import RenderOptions, renderer
 from tracecheck.rules import rules
@@ -39,11 +40,7 @@ FINGERPRINT_KEY = "tracecheck/v1"
 # Annotations beyond this number are summarised in one closing line; CI systems show only
 # a few dozen per step anyway (common practice, no source).
 ANNOTATION_CAP = 50
-CAUTION = (
-    "These results support, and do not replace, review by qualified people. Tool "
-    "qualification under the applicable standard is the user's responsibility; local "
-    "codes and licensed practice prevail."
-)
+CAUTION = caution("These results support")
 
 
 def _is_gate(result: CheckResult) -> bool:
