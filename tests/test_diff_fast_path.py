@@ -212,3 +212,15 @@ def test_counterparts_from_codes_equal_the_plain_ones(document, direction, relat
     for element_id in objects.by_id:
         assert counterparts(model, element_id, condition) == _plain_counterparts(objects, element_id, condition)
     assert model.elements == objects.elements and model.links == objects.links  # built one side at a time
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.integers(0, 40), max_size=60), st.lists(st.integers(0, 40), max_size=60))
+def test_absent_mask_equals_python_set_membership(keys, others):
+    # Oracle: Python's own set membership (the plain definition of "not in").
+    import numpy as np
+
+    from tracecheck.diff.structural import _absent
+
+    mask = _absent(np.array(keys, dtype=np.int64), np.array(others, dtype=np.int64))
+    assert mask.tolist() == [k not in set(others) for k in keys]

@@ -157,3 +157,65 @@ def test_a_null_link_end_is_refused_as_the_schema_refuses_it():
         document = {"format": "tracecheck-thread/1", "elements": [], "links": [link]}
         assert not jsonschema.Draft202012Validator(schema()).is_valid(document)
         assert fast_valid(document) is False
+
+
+# --- the typed decoder (msgspec structs) accepts exactly what the schema accepts ---------
+# Oracle: jsonschema's Draft 2020-12 validator over the published schema, as above; and,
+# for the values, the standard library's decoder through the reader's fallback path.
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(element_items, max_size=3), st.lists(link_items, max_size=3),
+       st.one_of(st.none(), st.dictionaries(near_limits, attribute_values, max_size=2)))
+def test_typed_decoder_agrees_with_the_published_schema(elements, links, model):
+    document = {"format": "tracecheck-thread/1", "elements": elements, "links": links}
+    if model is not None:
+        document["model"] = model
+    data = json.dumps(document).encode()
+    expected = jsonschema.Draft202012Validator(schema()).is_valid(json.loads(data))
+    assert (thread_json._decode_typed(data) is not None) == expected
+    if expected:
+        typed = thread_json.to_document(parse(data, "m.json"))
+        standard = thread_json.to_document(thread_json._parse_slowly(data, "m.json"))
+        assert typed == standard
+        assert [type(v) for v in _leaves(typed)] == [type(v) for v in _leaves(standard)]
+
+
+def _leaves(value):
+    if isinstance(value, dict):
+        for v in value.values():
+            yield from _leaves(v)
+    elif isinstance(value, list):
+        for v in value:
+            yield from _leaves(v)
+    else:
+        yield value
+
+
+def test_inputs_the_typed_decoder_refuses_but_the_schema_allows_still_read():
+    # Oracle: jsonschema over the published schema says these documents are valid; the
+    # values must be what json.loads (the standard library) makes of them.
+    cases = [
+        '{"format": "tracecheck-thread/1", "elements": [{"id": "A", "kind": "test", "name": "\\ud800"}], "links": []}',
+        '{"format": "tracecheck-thread/1", "elements": [{"id": "A", "kind": "test", "attributes": {"x": 1e400}}],'
+        ' "links": []}',
+    ]
+    for text in cases:
+        data = text.encode()
+        assert jsonschema.Draft202012Validator(schema()).is_valid(json.loads(text))
+        assert thread_json._decode_typed(data) is None
+        element = parse(data, "m.json").elements[0]
+        expected = json.loads(text)["elements"][0]
+        assert (element.name, dict(element.attributes)) == (expected.get("name"), expected.get("attributes", {}))
+
+
+def test_duplicate_keys_keep_the_last_value_on_both_paths():
+    # RFC 8259 section 4 leaves duplicate names open; Python's json module keeps the last
+    # value, and the typed decoder must agree with it (the fallback path is json).
+    text = ('{"format": "tracecheck-thread/1", "elements": [{"id": "A", "kind": "test", "kind": "hazard",'
+            ' "attributes": {"x": 1, "x": 2}}], "links": []}')
+    data = text.encode()
+    assert thread_json._decode_typed(data) is not None
+    element = parse(data, "m.json").elements[0]
+    assert (element.kind, dict(element.attributes)) == ("hazard", {"x": 2})
+    assert thread_json.to_document(parse(data, "m.json")) == thread_json.to_document(
+        thread_json._parse_slowly(data, "m.json"))

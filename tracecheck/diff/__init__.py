@@ -104,7 +104,10 @@ def _same_attribute_types(olds: list[Mapping[str, Any]], news: list[Mapping[str,
     order with values of the same types. All pairs at once, in C-level passes over the
     concatenated keys and value types (equal maps have equal lengths, so they align)."""
     def attributes(items):
-        return [x or {} for x in map(dict.get, items, repeat("attributes"))]
+        # Items are dicts (standard decoder) or structs (typed decoder); not mixed.
+        maps = (map(dict.get, items, repeat("attributes")) if items and type(items[0]) is dict
+                else map(operator.attrgetter("attributes"), items))
+        return [x or {} for x in maps]
 
     def types(maps):
         return list(map(type, chain.from_iterable(map(dict.values, maps))))

@@ -1,19 +1,25 @@
 """Thread JSON (``tracecheck-thread/1``), the native format.
 
-The reader decodes the whole document with the C decoder (garbage collection paused:
-the decoded tree has no cycles to collect), then checks it against the rules of
-``schemas/thread.schema.json`` column by column — ids, kinds, link ends, optional
-strings and attribute values each checked by a few C-level ``map``/``set`` passes
-rather than per-item Python calls — and hands the columns to a lazy
+The reader first decodes the bytes with msgspec's typed decoder into small structs
+(:class:`_ElementItem`, :class:`_LinkItem`) whose field types and length limits are the
+rules of ``schemas/thread.schema.json``: decoding *is* the schema check, in one pass of
+C code, with no second parse. The structs' columns go to a lazy
 :class:`~tracecheck.model.Model`: no Element or Link object is built unless someone
 asks for one. The line each element and link starts on is found by a vectorised byte
 scan (:mod:`tracecheck.formats.json_lines`) when a location is first needed.
 
-The published contract is ``schemas/thread.schema.json``; the column checks accept
-exactly what that schema accepts (a property test holds them to it). When they find
-anything wrong, or the document is not JSON, the reader decodes it again item by item
-to learn every item's line, and runs the schema itself so the user gets *all*
-violations, each with its file, line and JSON path.
+When the typed decoder refuses the document (a schema violation, malformed JSON, or
+one of the few inputs the schema allows and msgspec does not take: a lone surrogate
+escape, a number beyond the range of a float), the reader falls back to the standard
+library's decoder and checks the decoded document column by column (a few C-level
+``map``/``set`` passes). When those checks find anything wrong, or the document is
+not JSON, it decodes it again item by item to learn every item's line, and runs the
+schema itself so the user gets *all* violations, each with its file, line and JSON
+path.
+
+The published contract is ``schemas/thread.schema.json``; both the typed decoder and
+the column checks accept exactly what that schema accepts (property tests hold them
+to it, with jsonschema as the oracle).
 """
 
 from __future__ import annotations
@@ -24,8 +30,10 @@ from collections.abc import Mapping
 from functools import lru_cache
 from importlib import resources
 from itertools import chain, repeat
-from operator import itemgetter
-from typing import Any
+from operator import attrgetter, itemgetter
+from typing import Annotated, Any, Literal, Union
+
+import msgspec
 
 from tracecheck.arrays import ModelArrays
 from tracecheck.collection import collection_paused
@@ -50,6 +58,62 @@ def schema() -> dict[str, Any]:
     """The published thread JSON schema (JSON Schema 2020-12)."""
     text = resources.files("tracecheck").joinpath("schemas/thread.schema.json").read_text("utf-8")
     return json.loads(text)
+
+
+# --- the typed decoder: the schema's rules as field types ------------------------------
+
+_Identifier = Annotated[str, msgspec.Meta(min_length=1, max_length=_ID_MAX)]
+_ScalarValue = Union[Annotated[str, msgspec.Meta(max_length=_SCALAR_MAX)], int, float, bool]  # noqa: UP007
+_Attributes = dict[_Identifier, Union[_ScalarValue, list[_ScalarValue]]]  # noqa: UP007
+
+
+class _Item(msgspec.Struct, forbid_unknown_fields=True, gc=False):
+    """A decoded item read like the dict the standard decoder gives: ``item["id"]``,
+    ``item.get("name")`` (an absent optional field is ``None``; the decoder refuses an
+    explicit null, as the schema does). ``gc=False``: decoded items hold no cycles."""
+
+    def __getitem__(self, key: str) -> Any:
+        return getattr(self, key)
+
+    def get(self, key: str, default: Any = None) -> Any:
+        value = getattr(self, key)
+        return default if value is None else value
+
+
+class _ElementItem(_Item, forbid_unknown_fields=True, gc=False):
+    id: _Identifier
+    kind: _Identifier
+    name: Annotated[str, msgspec.Meta(max_length=_SHORT_MAX)] = None  # type: ignore[assignment]
+    text: Annotated[str, msgspec.Meta(max_length=_LONG_MAX)] = None  # type: ignore[assignment]
+    parent: _Identifier = None  # type: ignore[assignment]
+    attributes: _Attributes = None  # type: ignore[assignment]
+
+
+class _LinkItem(_Item, forbid_unknown_fields=True, gc=False):
+    source: _Identifier
+    target: _Identifier
+    relation: _Identifier
+    id: _Identifier = None  # type: ignore[assignment]
+    attributes: _Attributes = None  # type: ignore[assignment]
+
+
+class _Document(msgspec.Struct, forbid_unknown_fields=True, gc=False):
+    format: Literal["tracecheck-thread/1"]
+    elements: list[_ElementItem]
+    links: list[_LinkItem]
+    model: dict[str, _ScalarValue] = None  # type: ignore[assignment]
+
+
+_TYPED = msgspec.json.Decoder(_Document)
+
+
+def _decode_typed(data: bytes) -> _Document | None:
+    """The document as structs, or ``None`` when the typed decoder refuses it (the
+    caller then takes the standard decoder's path, which explains what is wrong)."""
+    try:
+        return _TYPED.decode(data[3:] if data.startswith(b"\xef\xbb\xbf") else data)
+    except (msgspec.DecodeError, RecursionError):  # ValidationError is a DecodeError
+        return None
 
 
 def _reject_constant(name: str) -> None:
@@ -389,6 +453,19 @@ def parse(data: bytes, origin: str) -> Model:
         (every violation, with line and JSON path).
     """
     with collection_paused():
+        typed = _decode_typed(data)
+        if typed is not None:
+            elements, links = typed.elements, typed.links
+            columns = _ThreadColumns(
+                elements, links, data, origin,
+                (list(map(attrgetter("id"), elements)), list(map(attrgetter("kind"), elements)),
+                 list(map(attrgetter("parent"), elements))),
+                (list(map(attrgetter("source"), links)), list(map(attrgetter("target"), links)),
+                 list(map(attrgetter("relation"), links))),
+            )
+            del elements, links
+            columns.arrays = ModelArrays(columns)
+            return Model.from_columns(columns, meta=typed.model, origin=origin, arrays=columns.take_arrays())
         text = _decode_text(data, origin)
         try:
             document = _DECODER.decode(text)
@@ -429,12 +506,14 @@ class _ThreadColumns:
     only on :meth:`materialise` (or one link at a time for a finding).
     """
 
-    def __init__(self, document: dict[str, Any], data: bytes, origin: str,
-                 elements: tuple[list[str], list[str]], links: tuple[list[str], list[str], list[str]]) -> None:
-        self._element_items: list[dict[str, Any]] = document["elements"]
-        self._link_items: list[dict[str, Any]] = document["links"]
-        self.element_ids, self.element_kinds = elements
-        self.element_parents = list(map(dict.get, self._element_items, repeat("parent")))
+    def __init__(self, element_items: list[Any], link_items: list[Any], data: bytes, origin: str,
+                 elements: tuple[list[str], list[str], list[str | None]],
+                 links: tuple[list[str], list[str], list[str]]) -> None:
+        # The items are dicts (standard decoder) or _Item structs (typed decoder); both
+        # answer item["key"] and item.get("key").
+        self._element_items: list[Any] = element_items
+        self._link_items: list[Any] = link_items
+        self.element_ids, self.element_kinds, self.element_parents = elements
         self.link_sources, self.link_targets, self.link_relations = links
         self._data: bytes | None = data
         self._origin = origin
@@ -450,7 +529,9 @@ class _ThreadColumns:
         links = None if elements is None else _link_columns(document["links"])
         if elements is None or links is None:
             return None
-        columns = cls(document, data, origin, elements, links)
+        items = document["elements"]
+        parents = list(map(dict.get, items, repeat("parent")))
+        columns = cls(items, document["links"], data, origin, (*elements, parents), links)
         try:
             columns.arrays = ModelArrays(columns)
         except TypeError:  # an unhashable id, kind, parent, end or relation
