@@ -44,8 +44,25 @@ def renderer(command: str, fmt: str) -> Callable[[Renderer], Renderer]:
     return register
 
 
-def _load() -> None:
-    for module in _BUILTIN:
+# The modules that register each command's renderers, so that rendering one command's
+# result imports only those: importing every renderer module pulls in the embedding
+# (scipy.optimize) and the diff, about 0.8-1.1 s of every `check` run's start-up.
+# tests/test_report_registry.py checks this table against a full load.
+_FOR_COMMAND: dict[str, tuple[str, ...]] = {
+    "check": ("check", "ci"),
+    "gate": ("gate", "ci"),
+    "diff": ("diff",),
+    "coverage": ("coverage", "coverage_html"),
+    "history": ("history",),
+    "review-status": ("review",),
+    "embed fit": ("embed",),
+    "embed verify": ("embed",),
+    "embed suggest": ("embed",),
+}
+
+
+def _load(command: str | None = None) -> None:
+    for module in _BUILTIN if command not in _FOR_COMMAND else _FOR_COMMAND[command]:  # type: ignore[index]
         importlib.import_module(f"tracecheck.report.{module}")
 
 
@@ -60,5 +77,7 @@ def formats_for(command: str) -> list[str]:
 
 
 def render(command: str, fmt: str, result: Any, options: RenderOptions) -> str | bytes:
-    _load()
+    _load(command)
+    if (command, fmt) not in _RENDERERS:
+        _load()
     return _RENDERERS[(command, fmt)](result, options)
