@@ -29,8 +29,12 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from scale import generate  # noqa: E402  (the shared synthetic thread)
 
 
-def second_version(path: Path, out: Path, seed: int = 11) -> dict[str, int]:
-    """Write a changed copy of the thread at ``path`` to ``out``; return what was planted."""
+def second_version(path: Path, out: Path, seed: int = 11, shuffle: bool = True) -> dict[str, int]:
+    """Write a changed copy of the thread at ``path`` to ``out``; return what was planted.
+
+    ``shuffle`` reorders the elements, as an export that does not keep its order does
+    (a line diff then sees most lines moved); without it the changed copy keeps the
+    order, as successive exports of a tool that does."""
     rng = random.Random(seed)
     doc = json.loads(path.read_text(encoding="utf-8"))
     elements, n = doc["elements"], len(doc["elements"])
@@ -67,7 +71,8 @@ def second_version(path: Path, out: Path, seed: int = 11) -> dict[str, int]:
                                 "text": f"The shore charger shall log event class {i} for the berth record."})
         doc["links"].append({"source": f"NEW-{i:06d}", "target": doc["elements"][i]["id"], "relation": "traces_to"})
     del doc["links"][: n // 200]
-    rng.shuffle(doc["elements"])
+    if shuffle:
+        rng.shuffle(doc["elements"])
     out.write_text(json.dumps(doc, indent=1), encoding="utf-8")
     return planted
 
