@@ -57,26 +57,26 @@ PHRASES = [
 
 BASELINE = """
 import json, resource, sys, time
-t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
+print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, time.process_time() - c)
 """
 
 ORJSON = """
 import orjson, resource, sys, time
-t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); orjson.loads(data)
-print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); orjson.loads(data)
+print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, time.process_time() - c)
 """
 
 CHECK = """
 import io, json, resource, sys, time
 from tracecheck.commands import check
 from tracecheck.commands.common import Streams
-t = time.perf_counter()
+t, c = time.perf_counter(), time.process_time()
 code = check.run(sys.argv[1], fmt='json', output=sys.argv[2], streams=Streams(io.StringIO(), sys.stderr))
-elapsed = time.perf_counter() - t
+elapsed, cpu = time.perf_counter() - t, time.process_time() - c
 rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
-print(elapsed, rss, time.perf_counter() - t)
+print(elapsed, rss, time.perf_counter() - t, cpu)
 """
 
 
@@ -241,7 +241,7 @@ def main() -> None:
     args = parser.parse_args()
     print(f"Machine: {machine()}")
     orjson = has_orjson()
-    rows, others = [], []
+    rows, others, cpu_rows = [], [], []
     with tempfile.TemporaryDirectory() as tmp:
         gate_sizes = None if args.gate_sizes is None else {int(s) for s in args.gate_sizes.split(",")}
         for n in (int(s) for s in args.sizes.split(",")):
@@ -249,10 +249,11 @@ def main() -> None:
             print(f"  {n:,} elements: generating, json.loads, orjson.loads, check ...", file=sys.stderr, flush=True)
             path = Path(tmp) / f"thread-{n}.json"
             generate(n, path)
-            base_t, base_m = best(BASELINE, repeat, str(path))
-            fast_t, fast_m = best(ORJSON, repeat, str(path)) if orjson else (float("nan"),) * 2
-            check_t, check_m, inner_t = best(CHECK, repeat, str(path), str(Path(tmp) / "out.json"))
+            base_t, base_m, base_c = best(BASELINE, repeat, str(path))
+            fast_t, fast_m, fast_c = best(ORJSON, repeat, str(path)) if orjson else (float("nan"),) * 3
+            check_t, check_m, inner_t, check_c = best(CHECK, repeat, str(path), str(Path(tmp) / "out.json"))
             rows.append((n, path.stat().st_size / 1e6, base_t, fast_t, check_t, inner_t, base_m, fast_m, check_m))
+            cpu_rows.append((n, base_c, fast_c, check_c))
             gate = not args.no_gate and (gate_sizes is None or n in gate_sizes)
             others += [(*row, fast_t, base_m) for row in other_commands(n, path, Path(tmp), repeat, gate)]
             path.unlink()
@@ -265,12 +266,20 @@ def main() -> None:
         print(f"| {n:,} | {mb:.0f} | {bt:.2f} | {ft:.2f} | {ct:.2f} | {ct / bt:.2f}x | {ct / it:.2f}x "
               f"| {ct / ft:.2f}x | {bm / 1024:.0f} | {fm / 1024:.0f} | {cm / 1024:.0f} | {cm / bm:.2f}x | {cm / fm:.2f}x |")
     print()
+    print("CPU seconds (time.process_time of each process; less sensitive to other load on the machine):")
+    print()
+    print("| elements | json.loads CPU s | orjson.loads CPU s | check CPU s | check / json.loads | check / orjson.loads |")
+    print("|---:|---:|---:|---:|---:|---:|")
+    for n, bc, fc, cc in cpu_rows:
+        print(f"| {n:,} | {bc:.2f} | {fc:.2f} | {cc:.2f} | {cc / bc:.2f}x | {cc / fc:.2f}x |")
+    print()
     print("Growth per decade (time at this size / time at the size ten times smaller):")
     print()
-    print("| elements | check | " + " | ".join(sorted({name for _, name, *_ in others})) + " |")
-    names = sorted({name for _, name, *_ in others})
+    names = ["check CPU", *sorted({name for _, name, *_ in others})]
+    print("| elements | check | " + " | ".join(names) + " |")
     print("|---:|---:|" + "---:|" * len(names))
     times = {(n, "check"): ct for n, _, _, _, ct, *_ in rows}
+    times.update({(n, "check CPU"): cc for n, _, _, cc in cpu_rows})
     times.update({(n, name): t for n, name, _, t, *_ in others})
     for n, *_ in rows:
         if n % 10 == 0 and any(k[0] == n // 10 for k in times):
