@@ -196,16 +196,17 @@ def machine() -> str:
     )
 
 
-def other_commands(n: int, path: Path, tmp: Path, repeat: int, gate: bool) -> list[tuple]:
+def other_commands(n: int, path: Path, tmp: Path, repeat: int, gate: bool,
+                   only: set[str] = frozenset({"diff", "coverage"})) -> list[tuple]:
     """Rows (elements, command, baseline name, s, CPU s, baseline s, baseline CPU s, MiB)."""
-    print(f"  {n:,} elements: diff, coverage{', gate' if gate else ''} ...", file=sys.stderr, flush=True)
+    print(f"  {n:,} elements: {', '.join(sorted(only))}{', gate' if gate else ''} ...", file=sys.stderr, flush=True)
     from diff import second_version  # noqa: PLC0415  (diff.py and gate.py import this module)
     from gate import ENV, build  # noqa: PLC0415
 
     out = str(tmp / "out.json")
     rows = []
     second = tmp / f"second-{n}.json"
-    for shuffle, name in ((True, "diff (both parses)"), (False, "diff, same order (both parses)")):
+    for shuffle, name in ((True, "diff (both parses)"), (False, "diff, same order (both parses)")) * ("diff" in only):
         second_version(path, second, shuffle=shuffle)
         git_t, git_cpu, _, stopped = best(GIT_STAT, 1 if n >= 1_000_000 else repeat, str(path), str(second),
                                           str(GIT_LIMIT))
@@ -214,8 +215,9 @@ def other_commands(n: int, path: Path, tmp: Path, repeat: int, gate: bool) -> li
                               str(path))
         rows.append((n, name, baseline, t, cpu, git_t, git_cpu, rss))
         second.unlink()
-    t, cpu, rss, inner = best(COMMAND.format(module="coverage", args=repr(str(path))), repeat, out, str(path))
-    rows.append((n, "coverage", "json.loads, same process", t, cpu, inner, inner, rss))
+    if "coverage" in only:
+        t, cpu, rss, inner = best(COMMAND.format(module="coverage", args=repr(str(path))), repeat, out, str(path))
+        rows.append((n, "coverage", "json.loads, same process", t, cpu, inner, inner, rss))
     if gate:
         root = tmp / f"repo-{n}"
         root.mkdir()
@@ -233,6 +235,8 @@ def main() -> None:
     parser.add_argument("--sizes", default="10000,100000")
     parser.add_argument("--repeat", type=int, default=3)
     parser.add_argument("--no-gate", action="store_true", help="leave out the gate rows")
+    parser.add_argument("--commands", default="diff,coverage,gate",
+                        help="which of diff, coverage, gate to measure beside check (default: all)")
     parser.add_argument("--gate-sizes", default=None,
                         help="sizes that get gate rows (default: every size; building the 20-commit "
                              "repository of a 1M-element thread writes about 11 GB)")
@@ -254,8 +258,9 @@ def main() -> None:
             check_t, check_m, inner_t, check_c = best(CHECK, repeat, str(path), str(Path(tmp) / "out.json"))
             rows.append((n, path.stat().st_size / 1e6, base_t, fast_t, check_t, inner_t, base_m, fast_m, check_m))
             cpu_rows.append((n, base_c, fast_c, check_c))
-            gate = not args.no_gate and (gate_sizes is None or n in gate_sizes)
-            others += [(*row, fast_t, base_m) for row in other_commands(n, path, Path(tmp), repeat, gate)]
+            only = set(args.commands.split(","))
+            gate = "gate" in only and not args.no_gate and (gate_sizes is None or n in gate_sizes)
+            others += [(*row, fast_t, base_m) for row in other_commands(n, path, Path(tmp), repeat, gate, only)]
             path.unlink()
     print()
     print("| elements | MB | json.loads s | orjson.loads s | check s | check / json.loads "
