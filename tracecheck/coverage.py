@@ -21,7 +21,7 @@ from tracecheck.sides import side_of
 if TYPE_CHECKING:
     from tracecheck.arrays import ModelArrays
 
-__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "percent", "matches_where", "counterparts"]
+__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "joined_pairs", "percent", "matches_where", "counterparts"]
 
 
 @dataclass(frozen=True)
@@ -161,6 +161,26 @@ def _attributes_match(attributes, where) -> bool:
 
 def _joined_counts(arrays: ModelArrays, condition: Condition) -> np.ndarray:
     """Per element code: distinct existing elements of ``condition.kinds`` joined to it."""
+    return np.bincount(joined_pairs(arrays, condition)[0], minlength=arrays.n)
+
+
+def joined_pairs(arrays: ModelArrays, condition: Condition) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct pairs of element codes joined as ``condition`` says.
+
+    Parameters
+    ----------
+    arrays : ModelArrays
+        The model's integer columns.
+    condition : Condition
+        Relations, direction and the kinds the other end may have.
+
+    Returns
+    -------
+    mine, other : ndarray
+        Equal-length code arrays: ``other[i]`` is one of :func:`counterparts` of the
+        element ``mine[i]``; each pair appears once, in no particular order. Links with
+        a missing end, and self-links, join nothing.
+    """
     n = arrays.n
     src, tgt, rel = arrays.distinct_links()
     codes = arrays.rel_codes(condition.relations)
@@ -172,10 +192,9 @@ def _joined_counts(arrays: ModelArrays, condition: Condition) -> np.ndarray:
         keep = np.isin(arrays.kind[other], arrays.kind_codes(condition.kinds))
         mine, other = mine[keep], other[keep]
     if len(codes) > 1:  # one pair may be joined by several relations: count it once
-        pairs = np.sort(mine * n + other)
-        pairs = pairs[np.concatenate(([True], pairs[1:] != pairs[:-1]))] if len(pairs) else pairs
-        mine = pairs // n
-    return np.bincount(mine, minlength=n)
+        pairs = np.unique(mine * n + other)
+        mine, other = pairs // n, pairs % n
+    return mine, other
 
 
 def evaluate_all(model: Model, declarations: Iterable[Declaration]) -> list[DeclarationResult]:
