@@ -505,32 +505,41 @@ class Matrix(Sequence[MatrixRow]):
 
 
 class Names(Mapping[str, str]):
-    """Element id -> name, for elements that have a non-empty name; each name read
-    from the model when asked for (the HTML view asks for the ids it shows)."""
+    """Element id -> name, for elements that have a non-empty name, read from the
+    model when first asked for (only the HTML view asks, for the ids it shows)."""
 
     def __init__(self, audit: _Audit) -> None:
         # The audit holds the model: a model built from objects answers from them, and
         # the side view only refers to its model weakly.
-        self._audit = audit
-        self._side = audit.side
+        self._audit: _Audit | None = audit
+        self._position = audit.side.position
+        self._names: list[str | None] | None = None
+
+    @property
+    def _by_code(self) -> list[str | None]:
+        if self._names is None:
+            assert self._audit is not None
+            side = self._audit.side
+            self._names = side.names(list(range(len(side))))
+            self._audit = None
+        return self._names
+
+    def get(self, element_id: str, default: Any = None) -> Any:  # type: ignore[override]
+        code = self._position.get(element_id)
+        return (code is not None and self._by_code[code]) or default
 
     def __getitem__(self, element_id: str) -> str:
-        code = self._side.position.get(element_id)
-        name = None if code is None else self._side.names([code])[0]
-        if not name:
+        name = self.get(element_id)
+        if name is None:
             raise KeyError(element_id)
         return name
 
-    def _all(self) -> dict[str, str]:
-        side = self._side
-        names = side.names(list(range(len(side))))
-        return {i: name for i, name in zip(side.ids, names, strict=True) if name}
-
     def __iter__(self) -> Iterator[str]:
-        return iter(self._all())
+        names = self._by_code
+        return (element_id for element_id, code in self._position.items() if names[code])
 
     def __len__(self) -> int:
-        return len(self._all())
+        return sum(1 for name in self._by_code if name)
 
 
 def _canonical_sha256(value: Any) -> str:
