@@ -379,7 +379,7 @@ class _Audit:
 def _groups(audit: _Audit, result: DeclarationResult, group_by: Sequence[str]) -> dict[str, dict[str, Counts]]:
     covered = evaluate_codes(audit.model, result.declaration)[0]
     uncovered = audit.codes_of(result.uncovered)  # in id order
-    scope = np.concatenate((covered, uncovered)).astype(np.int64, copy=False)
+    scope = np.concatenate((covered, uncovered))
     is_covered = np.arange(len(scope)) < len(covered)
     groups: dict[str, dict[str, Counts]] = {}
     for attribute in group_by:
@@ -449,26 +449,19 @@ def _matrix_rows(audit: _Audit, group_by: Sequence[str]) -> list[MatrixRow]:
     function = arrays.kind_code.get("function", -1)
     result, result_names = audit.results
     names = audit.side.names(codes.tolist())
+    attributes = audit.side.attributes(codes.tolist()) if group_by else [{}] * len(order)
     rows = []
-    for (element_id, code), name in zip(order, names, strict=True):
+    for (element_id, code), name, attrs in zip(order, names, attributes, strict=True):
         ends = satisfied(code)
         components = sorted({
             component for end in ends if arrays.kind[position[end]] == function
             for component in allocated(position[end])
         })
-        tests = verified(code)
+        cells = tuple("; ".join(group_key(attrs[a])) if a in attrs else "" for a in group_by)
         rows.append(MatrixRow(
-            element_id, name or "", (), tuple(ends), tuple(components),
-            tuple((t, result_names[result[position[t]]]) for t in tests),
+            element_id, name or "", cells, tuple(ends), tuple(components),
+            tuple((t, result_names[result[position[t]]]) for t in verified(code)),
         ))
-    if group_by:
-        attributes = audit.side.attributes(codes.tolist())
-        rows = [
-            MatrixRow(row.requirement, row.name, tuple(
-                "; ".join(group_key(attrs[a])) if a in attrs else "" for a in group_by
-            ), row.satisfied_by, row.allocated_to, row.verified_by)
-            for row, attrs in zip(rows, attributes, strict=True)
-        ]
     return rows
 
 
