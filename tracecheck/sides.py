@@ -119,6 +119,26 @@ class Side:
             codes = map(self.arrays.first.tolist().__getitem__, codes)
         return list(map(items.__getitem__, codes))
 
+    def attributes(self, codes: list[int]) -> list[Mapping[str, Any]]:
+        """The attributes of the elements with ``codes`` (first of each id), read from
+        the columns one item each, without building an element."""
+        first = self.arrays.first
+        return list(map(self.columns.element_attributes, first[codes].tolist() if len(codes) else []))
+
+    def names(self, codes: list[int]) -> list[str | None]:
+        """The names of the elements with ``codes`` (first of each id): from the
+        columns' names or decoded items when the reader keeps them, else one element
+        object each."""
+        index = self.arrays.first[codes].tolist() if len(codes) else []
+        names = getattr(self.columns, "element_names", None)
+        if names is not None:
+            return list(map(names.__getitem__, index))
+        items = getattr(self.columns, "element_items", None)
+        if items is not None:
+            return [item.get("name") for item in map(items.__getitem__, index)]
+        ids = self.arrays.names
+        return [self.element(ids[code]).name for code in codes]
+
 
 _SIDES: weakref.WeakKeyDictionary[Model, Side] = weakref.WeakKeyDictionary()
 

@@ -16,6 +16,8 @@ import csv
 import io
 import json
 from collections.abc import Iterable
+from json.encoder import encode_basestring
+from typing import Any
 
 from rich.padding import Padding
 from rich.table import Table
@@ -27,6 +29,7 @@ from tracecheck.report.console import to_text
 
 __all__ = [
     "coverage_json",
+    "indented_json",
     "coverage_text",
     "coverage_markdown",
     "coverage_csv",
@@ -88,7 +91,46 @@ def matrix_csv(report: CoverageReport) -> str:
 
 @renderer("coverage", "json")
 def coverage_json(report: CoverageReport, options: RenderOptions) -> str:
-    return json.dumps(report.to_json(), indent=2, ensure_ascii=False) + "\n"
+    document = report.to_json()
+    try:
+        return indented_json(document) + "\n"
+    except TypeError:  # a value indented_json leaves to the json module
+        return json.dumps(document, indent=2, ensure_ascii=False) + "\n"
+
+
+def indented_json(value: Any, indent: str = "") -> str:
+    """``json.dumps(value, indent=2, ensure_ascii=False)``, byte for byte, for dicts
+    with string keys, lists, strings, numbers, booleans and None (``TypeError`` for
+    anything else).
+
+    The json module's indenting encoder is pure Python, one generator step per list
+    item; a report at 1M elements lists several hundred thousand ids, which this joins
+    with the module's C string encoder instead (about a third of the time).
+    """
+    if isinstance(value, str):
+        return encode_basestring(value)
+    if value is None or value is True or value is False:
+        return "null" if value is None else "true" if value else "false"
+    if isinstance(value, int):
+        return int.__repr__(value)
+    if isinstance(value, float):
+        return json.dumps(value)
+    inner = indent + "  "
+    between = ",\n" + inner
+    if isinstance(value, list):
+        if not value:
+            return "[]"
+        if all(type(item) is str for item in value):
+            items = between.join(map(encode_basestring, value))
+        else:
+            items = between.join([indented_json(item, inner) for item in value])
+        return f"[\n{inner}{items}\n{indent}]"
+    if isinstance(value, dict) and all(type(key) is str for key in value):
+        if not value:
+            return "{}"
+        items = between.join([f"{encode_basestring(k)}: {indented_json(v, inner)}" for k, v in value.items()])
+        return f"{{\n{inner}{items}\n{indent}}}"
+    raise TypeError(f"not left to indented_json: {type(value).__name__}")
 
 
 def _summary_rows(d: DeclarationReport):
