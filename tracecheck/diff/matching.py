@@ -15,8 +15,6 @@ from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
-import networkx as nx
-
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
 
@@ -277,6 +275,8 @@ def _assign(scored: list[tuple[str, str, float]], threshold: float) -> list[tupl
     summed scores would prefer two pairs just above the threshold (0.55 + 0.55) to one
     exact pair (1.0) and a leftover, splitting a true renumbering to make a false one.
     """
+    import networkx as nx  # only when some elements are left to pair (about 0.1 s to import)
+
     graph = nx.Graph()
     for old_id, new_id, score in sorted(scored):
         gain = score - threshold + 1e-6 + _tie_break(old_id, new_id)
