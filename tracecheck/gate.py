@@ -17,6 +17,7 @@ File cases, decided here and documented in the README:
 from __future__ import annotations
 
 from collections import Counter
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -27,7 +28,7 @@ from tracecheck.diff import diff_models
 from tracecheck.model import Model
 from tracecheck.rules.engine import Finding, run_rules, sort_key
 
-__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "FILE_STATUSES"]
+__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "start_compare", "Comparison", "start_side", "forks", "FILE_STATUSES"]
 
 FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
 # Models at least this large (elements + links) check both sides in a forked child while
@@ -37,13 +38,22 @@ FORK_MIN = 20_000
 
 @dataclass(frozen=True)
 class FileSides:
-    """One model file at base and on head (``None`` where it does not exist)."""
+    """One model file at base and on head (``None`` where it does not exist).
+
+    ``head_work``, when given, is head's rules and input record already started
+    (:func:`start_side`), e.g. in a forked child as soon as head was parsed.
+    ``reread``, when given, parses a side again from its bytes (``"head"`` or
+    ``"base"``): work forked to a child then falls back on it, so this process need
+    not keep the models alive while the child works (:func:`start_compare`).
+    """
 
     path: str  # from the repository root
     base: Model | None
     head: Model | None
     base_data: bytes | None = None
     head_data: bytes | None = None
+    head_work: background.Pending | None = None
+    reread: Callable[[str], Model | None] | None = None
 
 
 @dataclass(frozen=True)
@@ -78,35 +88,84 @@ def _inputs(model: Model, data: bytes | None, config: Config, role: str) -> list
     return [e for e in entries if e["role"] != "config"]
 
 
+def forks(model: Model | None, other_data: bytes | None, data: bytes | None) -> bool:
+    """Whether a side's work is worth a forked child: the model is large and the other
+    side exists with different bytes (so this process has other work meanwhile)."""
+    return model is not None and other_data is not None and other_data != data and _big(model)
+
+
+def _side_work(model: Model, data: bytes | None, config: Config, role: str) -> tuple[list[Finding], list]:
+    return run_rules(model, config), _inputs(model, data, config, role)
+
+
+def start_side(model: Model, data: bytes | None, config: Config, role: str, *, fork: bool,
+               reread: Callable[[], Model | None] | None = None) -> background.Pending:
+    """Start one side's rules and its input record (file hash and counts): in a forked
+    child with ``fork`` (only the findings and the record come back; should the child
+    fail, they are computed here, on ``reread()`` when given), else in this process
+    when the result is asked for."""
+    fallback = None if reread is None else (lambda: _side_work(reread(), data, config, role))
+    return background.start(lambda: _side_work(model, data, config, role), fork=fork, fallback=fallback)
+
+
+class Comparison:
+    """A file comparison under way (:func:`start_compare`). It holds the results and the
+    work still running in children, not the models, so the caller can free those
+    meanwhile; :meth:`result` waits for the rest."""
+
+    def __init__(self, path: str, status: str, head: background.Pending | None, base: tuple[list, list],
+                 diff: background.Pending | None) -> None:
+        self._path, self._status = path, status
+        self._head, self._base, self._diff = head, base, diff
+
+    def result(self) -> FileOutcome:
+        path, status = self._path, self._status
+        diff = None if self._diff is None else self._diff.result()
+        head, inputs = ([], []) if self._head is None else self._head.result()
+        base, base_inputs = self._base
+        inputs = inputs + base_inputs
+        if status == "unchanged":
+            return FileOutcome(path, status, head, [], [], None, inputs)
+        if status == "deleted":
+            note = (f"{path}: deleted on head; its {len(base)} finding(s) at base are not "
+                    "counted as resolved (removing a model export fixes nothing).")
+            return FileOutcome(path, status, [], [], [], None, inputs, note)
+        return _outcome(path, status, head, base, diff, inputs)
+
+
+def start_compare(sides: FileSides, config: Config) -> Comparison:
+    """Start comparing both sides of one model file; see :func:`compare_file`.
+
+    For a large modified model, head's rules (unless already started) and the diff run
+    in forked children while this process checks base; the returned
+    :class:`Comparison` then needs the models no more when ``sides.reread`` is given.
+    Otherwise the work runs here when the result is asked for.
+    """
+    status = _status(sides)
+    fork = status == "modified" and _big(sides.base)
+    reread = sides.reread if fork else None
+    head_work = sides.head_work
+    if head_work is None and sides.head is not None:
+        head_work = start_side(sides.head, sides.head_data, config, "model", fork=fork,
+                               reread=None if reread is None else (lambda: reread("head")))
+    diff_work = None
+    if status not in ("unchanged", "deleted"):
+        path, base_data, head_data = sides.path, sides.base_data, sides.head_data  # not the models
+        fallback = None if reread is None else (lambda: _diff(
+            FileSides(path, reread("base"), reread("head"), base_data, head_data), config))
+        diff_work = background.start(lambda: _diff(sides, config), fork=fork, fallback=fallback)
+    base = ([], []) if sides.base is None or status == "unchanged" else _side_work(
+        sides.base, sides.base_data, config, "base")  # here, while the children work
+    return Comparison(sides.path, status, head_work, base, diff_work)
+
+
 def compare_file(sides: FileSides, config: Config) -> FileOutcome:
     """Check both sides of one model file and compare their findings by fingerprint.
 
-    For a large modified model the rules of both sides run in a forked child while this
-    process diffs (:mod:`tracecheck.background`); the result is the same.
+    For a large modified model, head's rules and the diff run in forked children while
+    this process checks base (:mod:`tracecheck.background`); the result is the same.
     """
-    status = _status(sides)
-    inputs = [] if sides.head is None else _inputs(sides.head, sides.head_data, config, "model")
-    if status == "unchanged":
-        return FileOutcome(sides.path, status, run_rules(sides.head, config), [], [], None, inputs)
-    if status == "modified" and _big(sides.base):
-        # Both sides' rules in a forked child while this process diffs: the diff is the
-        # longest step, and the rules of both sides together take less.
-        base_model, head_model = sides.base, sides.head
-        pending = background.start(lambda: (run_rules(base_model, config), run_rules(head_model, config)))
-        inputs += _inputs(base_model, sides.base_data, config, "base")
-        diff = _diff(sides, config)
-        base, head = pending.result()
-        return _outcome(sides, status, head, base, diff, inputs)
-    if sides.base is not None:
-        inputs += _inputs(sides.base, sides.base_data, config, "base")
-    head = [] if sides.head is None else run_rules(sides.head, config)
-    diff = None if sides.head is None else _diff(sides, config)
-    base = [] if sides.base is None else run_rules(sides.base, config)
-    if status == "deleted":
-        note = (f"{sides.path}: deleted on head; its {len(base)} finding(s) at base are not "
-                "counted as resolved (removing a model export fixes nothing).")
-        return FileOutcome(sides.path, status, [], [], [], None, inputs, note)
-    return _outcome(sides, status, head, base, diff, inputs)
+    return start_compare(sides, config).result()
 
 
 def _big(model: Model) -> bool:
@@ -120,12 +179,12 @@ def _diff(sides: FileSides, config: Config) -> dict[str, Any]:
     return {k: v for k, v in summary.items() if k not in ("findings", "coverage")}
 
 
-def _outcome(sides: FileSides, status: str, head: list[Finding], base: list[Finding],
+def _outcome(path: str, status: str, head: list[Finding], base: list[Finding],
              diff: dict[str, Any] | None, inputs: list[dict[str, Any]]) -> FileOutcome:
     before = {f.fingerprint for f in base}
     after = {f.fingerprint for f in head}
     return FileOutcome(
-        sides.path,
+        path,
         status,
         head,
         [f for f in head if f.fingerprint not in before],

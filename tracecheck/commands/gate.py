@@ -22,7 +22,7 @@ from tracecheck.commands.outcome import apply_review, step_summary
 from tracecheck.config import Config
 from tracecheck.errors import InputError, UsageError
 from tracecheck.formats import read_model
-from tracecheck.gate import FileSides, GateResult, compare_file, sorted_findings
+from tracecheck.gate import FileSides, GateResult, forks, sorted_findings, start_compare, start_side
 from tracecheck.report import RenderOptions, render
 from tracecheck.report.progress import late_progress, progress_enabled
 from tracecheck.rules import rules
@@ -75,16 +75,30 @@ def _read(data: bytes | None, origin: str, config: Config, input_format: str | N
 
 def _sides(path: str, root: Path, base: str, head: str | None, config: Config,
            input_format: str | None) -> FileSides:
+    """Both sides of ``path``, read and parsed. On a large modified file head's rules
+    start in a forked child as soon as head is parsed (:func:`gate.start_side`), so
+    they run while this process parses base."""
     head_data = _worktree_bytes(root, path) if head is None else _blob(head, root, path)
     base_data = _blob(base, root, path)
     if head_data is None and base_data is None:
         where = "in the working tree" if head is None else f"at {head}"
         raise InputError(f"{path}: exists neither {where} nor at the base {base[:12]}.")
-    head_origin = path if head is None else f"{head}:{path}"
-    head_model = _read(head_data, head_origin, config, input_format)
-    base_model = head_model if base_data == head_data else _read(
-        base_data, f"{base[:12]}:{path}", config, input_format)
-    return FileSides(path, base_model, head_model, base_data, head_data)
+    origins = {"head": path if head is None else f"{head}:{path}", "base": f"{base[:12]}:{path}"}
+
+    def reread(side: str):  # a side again from its bytes, should a forked child fail
+        return _read(head_data if side == "head" else base_data, origins[side], config, input_format)
+
+    head_model = reread("head")
+    head_work = None
+    if forks(head_model, base_data, head_data):
+        head_work = start_side(head_model, head_data, config, "model", fork=True, reread=lambda: reread("head"))
+    try:
+        base_model = head_model if base_data == head_data else reread("base")
+    except BaseException:  # a bad base: stop head's child rather than leave it running
+        if head_work is not None:
+            head_work.cancel()
+        raise
+    return FileSides(path, base_model, head_model, base_data, head_data, head_work, reread)
 
 
 # The gate's renderers by format: (module under tracecheck/report/, function). Importing
@@ -168,10 +182,13 @@ def _run(paths, base, head, exact_base, fmt, output, config_option, input_format
             step(n / len(relative), f"reading {path}")
             sides = _sides(path, root, base_commit, head, config, input_format)
             step((n + 0.5) / len(relative), f"comparing {path}")
-            outcomes.append(compare_file(sides, config))
+            comparison = start_compare(sides, config)
             more_checks, more_absent = _embedding_checks(embedding, [sides])
             checks, absent = checks + more_checks, absent + more_absent
-            del sides  # each file's models are freed before the next is read
+            # Each file's models are freed before the next is read; on a large file,
+            # while forked children still diff and check (they hold their own copies).
+            del sides
+            outcomes.append(comparison.result())
     old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
     review = apply_review(
         [f for o in outcomes for f in o.head_findings], config, cwd,
