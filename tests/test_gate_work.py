@@ -41,7 +41,7 @@ def test_forked_sides_and_diff_give_byte_identical_reports(repo, monkeypatch):  
 
 @needs_fork
 def test_a_failing_child_is_redone_here_from_the_bytes(repo, monkeypatch):  # noqa: F811
-    """Every child dies at once; the parent re-reads the sides and computes the same."""
+    """Every child dies at once; the parent reads the sides again and computes the same."""
     import tracecheck.commands.gate as command
 
     expected = reports(("json", "sarif"))
@@ -62,8 +62,8 @@ def test_a_failing_child_is_redone_here_from_the_bytes(repo, monkeypatch):  # no
     monkeypatch.setattr(tracecheck.gate, "_diff", dying(diff))
     monkeypatch.setattr(tracecheck.gate, "_side_work", dying(side_work))
     assert reports(("json", "sarif")) == expected
-    # per report: both sides read, then head again for its rules, both again for the diff
-    assert len(reads) == 2 * 5
+    # per report: head read here (base only in the dead child), then both sides again
+    assert len(reads) == 2 * 3
 
 
 def test_without_fork_everything_runs_here(repo, monkeypatch):  # noqa: F811
@@ -113,3 +113,47 @@ def test_cancel_stops_and_reaps_the_child():
     with pytest.raises(ChildProcessError):
         os.waitpid(pid, os.WNOHANG)  # already reaped: no zombie left behind
     pending.cancel()  # a second cancel does nothing
+
+
+@needs_fork
+def test_children_that_sent_their_result_are_reaped():
+    pids = [background.start(os.getpid) for _ in range(3)]
+    assert len({p.result() for p in pids}) == 3
+    deadline = time.monotonic() + 20
+    while background._EXITING and time.monotonic() < deadline:
+        time.sleep(0.05)
+        background._reap()
+    assert background._EXITING == []  # no zombie left once they have exited
+
+
+def test_start_blob_reads_what_git_show_prints(repo):  # noqa: F811
+    """Reference: ``git show REV:PATH`` prints a blob's bytes (git documentation)."""
+    from tests.conftest import git
+    from tracecheck import gitsource
+    from tracecheck.errors import GitError
+
+    for rev in ("main", "feature"):
+        expected = git(repo, "show", f"{rev}:model/thread.json").encode("utf-8")
+        assert gitsource.start_blob(rev, "model/thread.json", repo)() == expected
+        assert gitsource.read_blob(rev, "model/thread.json", repo) == expected
+    assert gitsource.start_blob("main", "model/absent.json", repo) is None
+    with pytest.raises(GitError, match="is a folder"):
+        gitsource.start_blob("main", "model", repo)
+
+
+@pytest.mark.parametrize("fork_min", [0, 10**9])
+def test_unreadable_sides_exit_2_naming_the_file(repo, monkeypatch, fork_min):  # noqa: F811
+    from tests.conftest import git
+
+    monkeypatch.setattr(tracecheck.gate, "FORK_MIN", fork_min)
+    model = repo / "model" / "thread.json"
+    good = model.read_text("utf-8")
+    model.write_text("{not json", encoding="utf-8")  # head (the working tree) unreadable
+    result = run("gate", "model/thread.json")
+    assert result.exit_code == 2 and "model/thread.json" in result.stderr
+    assert "Traceback" not in result.stderr
+    git(repo, "commit", "-qam", "broken export")  # now base is unreadable, head fine
+    model.write_text(good, encoding="utf-8")
+    result = run("gate", "--base", "HEAD", "--exact-base", "model/thread.json")
+    assert result.exit_code == 2 and "model/thread.json" in result.stderr
+    assert "Traceback" not in result.stderr

@@ -28,7 +28,7 @@ from tracecheck.diff import diff_models
 from tracecheck.model import Model
 from tracecheck.rules.engine import Finding, run_rules, sort_key
 
-__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "start_compare", "Comparison", "start_side", "forks", "FILE_STATUSES"]
+__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "start_compare", "start_forked", "Comparison", "start_side", "forks", "FILE_STATUSES"]
 
 FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
 # Models at least this large (elements + links) check both sides in a forked child while
@@ -38,22 +38,13 @@ FORK_MIN = 20_000
 
 @dataclass(frozen=True)
 class FileSides:
-    """One model file at base and on head (``None`` where it does not exist).
-
-    ``head_work``, when given, is head's rules and input record already started
-    (:func:`start_side`), e.g. in a forked child as soon as head was parsed.
-    ``reread``, when given, parses a side again from its bytes (``"head"`` or
-    ``"base"``): work forked to a child then falls back on it, so this process need
-    not keep the models alive while the child works (:func:`start_compare`).
-    """
+    """One model file at base and on head (``None`` where it does not exist)."""
 
     path: str  # from the repository root
     base: Model | None
     head: Model | None
     base_data: bytes | None = None
     head_data: bytes | None = None
-    head_work: background.Pending | None = None
-    reread: Callable[[str], Model | None] | None = None
 
 
 @dataclass(frozen=True)
@@ -88,41 +79,48 @@ def _inputs(model: Model, data: bytes | None, config: Config, role: str) -> list
     return [e for e in entries if e["role"] != "config"]
 
 
-def forks(model: Model | None, other_data: bytes | None, data: bytes | None) -> bool:
-    """Whether a side's work is worth a forked child: the model is large and the other
-    side exists with different bytes (so this process has other work meanwhile)."""
-    return model is not None and other_data is not None and other_data != data and _big(model)
+# Models read inside a forked child: held there until it exits (background.start leaves
+# with os._exit), so the child never spends time freeing them.
+_HELD: list[Model] = []
+
+
+def forks(head: Model | None, base_data: bytes | None, head_data: bytes | None) -> bool:
+    """Whether a file is compared with forked children (:func:`start_forked`): head is
+    large and base exists with different bytes."""
+    return head is not None and base_data is not None and base_data != head_data and _big(head)
 
 
 def _side_work(model: Model, data: bytes | None, config: Config, role: str) -> tuple[list[Finding], list]:
     return run_rules(model, config), _inputs(model, data, config, role)
 
 
-def start_side(model: Model, data: bytes | None, config: Config, role: str, *, fork: bool,
-               reread: Callable[[], Model | None] | None = None) -> background.Pending:
-    """Start one side's rules and its input record (file hash and counts): in a forked
-    child with ``fork`` (only the findings and the record come back; should the child
-    fail, they are computed here, on ``reread()`` when given), else in this process
+def start_side(model: Model, data: bytes | None, config: Config, role: str, *, fork: bool) -> background.Pending:
+    """One side's rules and its input record (file hash and counts): in a forked child
+    with ``fork`` (only the findings and the record come back), else in this process
     when the result is asked for."""
-    fallback = None if reread is None else (lambda: _side_work(reread(), data, config, role))
-    return background.start(lambda: _side_work(model, data, config, role), fork=fork, fallback=fallback)
+    return background.start(lambda: _side_work(model, data, config, role), fork=fork)
+
+
+def _base_and_diff(sides: FileSides, status: str, config: Config, *, fork: bool) -> tuple[Any, tuple[list, list]]:
+    """The diff and base's rules and input record; base's rules in a forked child with
+    ``fork`` while this process diffs."""
+    base = None if sides.base is None or status == "unchanged" else start_side(
+        sides.base, sides.base_data, config, "base", fork=fork)
+    diff = None if status in ("unchanged", "deleted") else _diff(sides, config)
+    return diff, ([], []) if base is None else base.result()
 
 
 class Comparison:
-    """A file comparison under way (:func:`start_compare`). It holds the results and the
-    work still running in children, not the models, so the caller can free those
-    meanwhile; :meth:`result` waits for the rest."""
+    """A file comparison under way (:func:`start_compare`, :func:`start_forked`);
+    :meth:`result` waits for the parts still running."""
 
-    def __init__(self, path: str, status: str, head: background.Pending | None, base: tuple[list, list],
-                 diff: background.Pending | None) -> None:
-        self._path, self._status = path, status
-        self._head, self._base, self._diff = head, base, diff
+    def __init__(self, path: str, status: str, head: background.Pending | None, rest: background.Pending) -> None:
+        self._path, self._status, self._head, self._rest = path, status, head, rest
 
     def result(self) -> FileOutcome:
         path, status = self._path, self._status
-        diff = None if self._diff is None else self._diff.result()
+        diff, (base, base_inputs) = self._rest.result()
         head, inputs = ([], []) if self._head is None else self._head.result()
-        base, base_inputs = self._base
         inputs = inputs + base_inputs
         if status == "unchanged":
             return FileOutcome(path, status, head, [], [], None, inputs)
@@ -133,37 +131,46 @@ class Comparison:
         return _outcome(path, status, head, base, diff, inputs)
 
 
-def start_compare(sides: FileSides, config: Config) -> Comparison:
-    """Start comparing both sides of one model file; see :func:`compare_file`.
+def start_forked(path: str, head: Model, head_data: bytes, base_data: bytes,
+                 read: Callable[[str], Model], config: Config) -> Comparison:
+    """Compare a large modified file where base is read only in forked children.
 
-    For a large modified model, head's rules (unless already started) and the diff run
-    in forked children while this process checks base; the returned
-    :class:`Comparison` then needs the models no more when ``sides.reread`` is given.
-    Otherwise the work runs here when the result is asked for.
+    A child reads base (``read("base")``), forks a grandchild for base's rules and
+    diffs; this process checks head meanwhile. Only the diff summary and base's
+    findings come back, so base is never built here and head can be freed as soon as
+    the returned :class:`Comparison` exists (it holds no model). Should the child
+    fail, the same is computed here from ``read("head")`` and ``read("base")``.
     """
+    def rest() -> tuple[Any, tuple[list, list]]:  # in the child
+        base = read("base")
+        _HELD.append(base)  # the child leaves without freeing it (tearing it down costs 0.3 s at 100k)
+        return _base_and_diff(FileSides(path, base, head, base_data, head_data), "modified", config, fork=True)
+
+    def fallback() -> tuple[Any, tuple[list, list]]:
+        sides = FileSides(path, read("base"), read("head"), base_data, head_data)
+        return _base_and_diff(sides, "modified", config, fork=False)
+
+    pending = background.start(rest, fork=True, fallback=fallback)
+    done = _side_work(head, head_data, config, "model")  # here, while the child works
+    return Comparison(path, "modified", background.Pending(lambda: done, None, None), pending)
+
+
+def start_compare(sides: FileSides, config: Config) -> Comparison:
+    """Start comparing both sides of one model file; see :func:`compare_file`."""
     status = _status(sides)
-    fork = status == "modified" and _big(sides.base)
-    reread = sides.reread if fork else None
-    head_work = sides.head_work
-    if head_work is None and sides.head is not None:
-        head_work = start_side(sides.head, sides.head_data, config, "model", fork=fork,
-                               reread=None if reread is None else (lambda: reread("head")))
-    diff_work = None
-    if status not in ("unchanged", "deleted"):
-        path, base_data, head_data = sides.path, sides.base_data, sides.head_data  # not the models
-        fallback = None if reread is None else (lambda: _diff(
-            FileSides(path, reread("base"), reread("head"), base_data, head_data), config))
-        diff_work = background.start(lambda: _diff(sides, config), fork=fork, fallback=fallback)
-    base = ([], []) if sides.base is None or status == "unchanged" else _side_work(
-        sides.base, sides.base_data, config, "base")  # here, while the children work
-    return Comparison(sides.path, status, head_work, base, diff_work)
+    if status == "modified" and _big(sides.base) and background.forkable():
+        return start_forked(sides.path, sides.head, sides.head_data, sides.base_data,
+                            lambda side: sides.head if side == "head" else sides.base, config)
+    head = None if sides.head is None else start_side(sides.head, sides.head_data, config, "model", fork=False)
+    rest = background.start(lambda: _base_and_diff(sides, status, config, fork=False), fork=False)
+    return Comparison(sides.path, status, head, rest)
 
 
 def compare_file(sides: FileSides, config: Config) -> FileOutcome:
     """Check both sides of one model file and compare their findings by fingerprint.
 
-    For a large modified model, head's rules and the diff run in forked children while
-    this process checks base (:mod:`tracecheck.background`); the result is the same.
+    For a large modified model, base's rules and the diff run in forked children while
+    this process checks head (:mod:`tracecheck.background`); the result is the same.
     """
     return start_compare(sides, config).result()
 
