@@ -14,6 +14,7 @@ import re
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
+from itertools import filterfalse
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
@@ -339,9 +340,10 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     # built except for the unmatched elements that are scored.
     old_side, new_side = side_of(old), side_of(new)
     in_new = new_side.position
-    mapping = {i: i for i in old_side.ids if i in in_new}
-    old_left = [i for i in old_side.ids if i not in mapping]
-    new_left = [i for i in new_side.ids if i not in mapping]
+    shared = list(filter(in_new.__contains__, old_side.ids))  # C-level passes, in old order
+    mapping = dict(zip(shared, shared, strict=True))
+    old_left = list(filterfalse(mapping.__contains__, old_side.ids))
+    new_left = list(filterfalse(mapping.__contains__, new_side.ids))
     if not old_left or not new_left:
         return Matching(mapping, [])
     identity = {i: i for i in mapping}
