@@ -157,3 +157,17 @@ def test_unreadable_sides_exit_2_naming_the_file(repo, monkeypatch, fork_min):  
     result = run("gate", "--base", "HEAD", "--exact-base", "model/thread.json")
     assert result.exit_code == 2 and "model/thread.json" in result.stderr
     assert "Traceback" not in result.stderr
+
+
+def test_start_blob_reads_in_this_process_when_no_temporary_file_can_be_made(repo, monkeypatch):  # noqa: F811
+    import tempfile
+
+    from tests.conftest import git
+    from tracecheck import gitsource
+
+    def refuse():
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(tempfile, "TemporaryFile", refuse)
+    expected = git(repo, "show", "main:model/thread.json").encode("utf-8")
+    assert gitsource.start_blob("main", "model/thread.json", repo)() == expected

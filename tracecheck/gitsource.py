@@ -127,9 +127,13 @@ def start_blob(rev: str, path: str, cwd: Path) -> Callable[[], bytes] | None:
         return None
     if entry.type != "blob":
         raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
-    handle = tempfile.TemporaryFile()
     command = [git.Git.GIT_PYTHON_GIT_EXECUTABLE or "git", f"--git-dir={repo.git_dir}", "cat-file", "blob", entry.hexsha]
-    process = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=handle, stderr=subprocess.PIPE)
+    try:
+        handle = tempfile.TemporaryFile()
+        process = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=handle, stderr=subprocess.PIPE)
+    except OSError:  # no temporary file or process to spare: read it now, as read_blob does
+        data = entry.data_stream.read()
+        return lambda: data
 
     def wait() -> bytes:
         with handle:
