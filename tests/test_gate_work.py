@@ -171,3 +171,17 @@ def test_start_blob_reads_in_this_process_when_no_temporary_file_can_be_made(rep
     monkeypatch.setattr(tempfile, "TemporaryFile", refuse)
     expected = git(repo, "show", "main:model/thread.json").encode("utf-8")
     assert gitsource.start_blob("main", "model/thread.json", repo)() == expected
+
+
+@needs_fork
+def test_when_fork_fails_the_work_is_done_here(repo, monkeypatch):  # noqa: F811
+    expected = reports(("json",))
+    monkeypatch.setattr(tracecheck.gate, "FORK_MIN", 0)
+
+    def no_fork():
+        raise OSError(11, "Resource temporarily unavailable")
+
+    monkeypatch.setattr(os, "fork", no_fork)
+    assert reports(("json",)) == expected
+    assert background.start(os.getpid, fallback=lambda: "here").result() == "here"
+    assert background.start(os.getpid).result() == os.getpid()

@@ -86,9 +86,9 @@ def start(function: Callable[[], Any], *, fork: bool = True,
           fallback: Callable[[], Any] | None = None) -> Pending:
     """Start ``function()`` in a forked child (or lazily in the parent).
 
-    When the child fails, :meth:`Pending.result` computes ``fallback()`` (default:
-    ``function()``) here instead; a forked computation holds no reference to
-    ``function`` in the parent once a fallback is given.
+    When the child fails, or no child can be forked, :meth:`Pending.result` computes
+    ``fallback()`` (default: ``function()``) here instead; a forked computation holds
+    no reference to ``function`` in the parent once a fallback is given.
     """
     if not forkable(fork):
         return Pending(function, None, None)
@@ -99,7 +99,7 @@ def start(function: Callable[[], Any], *, fork: bool = True,
     except OSError:  # no process to spare (memory, process limit): compute it here
         os.close(read)
         os.close(write)
-        return Pending(function, None, None)
+        return Pending(function if fallback is None else fallback, None, None)
     if pid == 0:  # child: compute, send, and leave without running the parent's cleanup
         os.close(read)
         try:
