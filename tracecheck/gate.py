@@ -28,11 +28,15 @@ from tracecheck.diff import diff_models
 from tracecheck.model import Model
 from tracecheck.rules.engine import Finding, run_rules, sort_key
 
-__all__ = ["GateResult", "FileSides", "FileOutcome", "compare_file", "start_compare", "start_forked", "Comparison", "start_side", "forks", "FILE_STATUSES"]
+__all__ = [
+    "GateResult", "FileSides", "FileOutcome", "FILE_STATUSES",
+    "compare_file", "start_compare", "start_forked", "start_side", "forks", "Comparison",
+]
 
 FILE_STATUSES = ("added", "deleted", "modified", "unchanged")
-# Models at least this large (elements + links) check both sides in a forked child while
-# the parent diffs; below it the fork costs more than it saves.
+# Models at least this large (elements + links) are compared with forked children
+# (start_forked: base read, checked and diffed beside head's check); below it a fork
+# costs more than it saves.
 FORK_MIN = 20_000
 
 
