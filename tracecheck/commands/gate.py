@@ -11,7 +11,6 @@ a non-exact one fails the gate (exit 1).
 from __future__ import annotations
 
 import dataclasses
-import importlib
 import os
 from pathlib import Path
 
@@ -115,23 +114,6 @@ def _start(path: str, root: Path, base: str, head: str | None, config: Config,
     return start_compare(FileSides(path, base_model, head_model, base_data, head_data), config), head_model
 
 
-# The gate's renderers by format: (module under tracecheck/report/, function). Importing
-# only these keeps the gate's start-up free of every other command's report modules
-# (the embedding report alone pulls in scipy.optimize, about 0.4 s); a format not listed
-# here goes through the registry as before.
-_RENDERERS = {
-    "text": ("gate", "gate_text"), "json": ("gate", "gate_json"), "markdown": ("gate", "gate_markdown"),
-    "sarif": ("ci", "sarif"), "junit": ("ci", "junit"), "github": ("ci", "github"),
-}
-
-
-def _render(fmt: str, result: GateResult, options: RenderOptions) -> str | bytes:
-    if fmt not in _RENDERERS:
-        return render("gate", fmt, result, options)
-    module, name = _RENDERERS[fmt]
-    return getattr(importlib.import_module(f"tracecheck.report.{module}"), name)(result, options)
-
-
 def _paths(paths: list[str], cwd: Path) -> list[str]:
     if not paths:
         raise UsageError("gate: name at least one model file (PATH...).")
@@ -225,7 +207,7 @@ def _run(paths, base, head, exact_base, fmt, output, config_option, input_format
         embedding_file=embedding,
         embedding=checks,
     )
-    emit(_render(fmt, result, options), output, streams)
+    emit(render("gate", fmt, result, options), output, streams)
     if fmt == "github" and os.environ.get("GITHUB_STEP_SUMMARY"):
-        step_summary(_render("markdown", result, options), Path(os.environ["GITHUB_STEP_SUMMARY"]))
+        step_summary(render("gate", "markdown", result, options), Path(os.environ["GITHUB_STEP_SUMMARY"]))
     return result.exit_code
