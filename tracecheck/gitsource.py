@@ -6,7 +6,9 @@ Single-purpose functions; every gitpython exception is converted here into a
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+import subprocess
+import tempfile
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -16,6 +18,7 @@ __all__ = [
     "open_repo",
     "repo_root",
     "read_blob",
+    "start_blob",
     "blob_id",
     "resolve",
     "merge_base",
@@ -104,6 +107,44 @@ def read_blob(rev: str, path: str, cwd: Path) -> bytes:
     if blob.type != "blob":
         raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
     return blob.data_stream.read()
+
+
+def start_blob(rev: str, path: str, cwd: Path) -> Callable[[], bytes] | None:
+    """Start reading ``path`` at ``rev``; ``None`` when absent there.
+
+    One ``git cat-file`` process inflates the blob into a temporary file while this
+    process does other work (a pipe would stall whenever Python holds the GIL); the
+    returned function waits for it and gives the bytes. Errors are those of
+    :func:`blob_id` and :func:`read_blob`.
+    """
+    import git
+
+    repo = open_repo(cwd)
+    commit = resolve(rev, cwd)
+    try:
+        entry = repo.commit(commit).tree / _tree_path(repo, path, cwd)
+    except KeyError:
+        return None
+    if entry.type != "blob":
+        raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
+    command = [git.Git.GIT_PYTHON_GIT_EXECUTABLE or "git", f"--git-dir={repo.git_dir}", "cat-file", "blob", entry.hexsha]
+    try:
+        handle = tempfile.TemporaryFile()
+        process = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=handle, stderr=subprocess.PIPE)
+    except OSError:  # no temporary file or process to spare: read it now, as read_blob does
+        data = entry.data_stream.read()
+        return lambda: data
+
+    def wait() -> bytes:
+        with handle:
+            _, error = process.communicate()
+            if process.returncode != 0:
+                raise GitError(f"{path}: git cat-file failed at git revision {rev!r}: "
+                               f"{error.decode('utf-8', 'replace').strip()}")
+            handle.seek(0)
+            return handle.read()
+
+    return wait
 
 
 def blob_id(rev: str, path: str, cwd: Path) -> str | None:

@@ -86,6 +86,10 @@ class Side:
     def parent(self, element_id: str) -> str | None:
         return self._parents[self.position[element_id]]
 
+    def parents(self, element_ids: list[str]) -> list[str | None]:
+        """:meth:`parent` of each id (all must exist), in C-level map passes."""
+        return list(map(self._parents.__getitem__, map(self.position.__getitem__, element_ids)))
+
     def _triple(self, index: int) -> Triple:
         columns = self.columns
         return (columns.link_sources[index], columns.link_targets[index], columns.link_relations[index])

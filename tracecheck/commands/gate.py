@@ -14,14 +14,23 @@ import dataclasses
 import os
 from pathlib import Path
 
-from tracecheck import gitsource
+from tracecheck import background, gitsource
 from tracecheck.collection import collection_paused
 from tracecheck.commands.common import Streams, emit, resolve_config
 from tracecheck.commands.outcome import apply_review, step_summary
 from tracecheck.config import Config
-from tracecheck.errors import InputError, UsageError
+from tracecheck.errors import GitError, InputError, UsageError
 from tracecheck.formats import read_model
-from tracecheck.gate import FileSides, GateResult, compare_file, sorted_findings
+from tracecheck.gate import (
+    Comparison,
+    FileSides,
+    GateResult,
+    forks,
+    sorted_findings,
+    start_compare,
+    start_forked,
+)
+from tracecheck.model import Model
 from tracecheck.report import RenderOptions, render
 from tracecheck.report.progress import late_progress, progress_enabled
 from tracecheck.rules import rules
@@ -72,18 +81,37 @@ def _read(data: bytes | None, origin: str, config: Config, input_format: str | N
     return read_model(data, origin, input_format=input_format, options=config.section("formats"))
 
 
-def _sides(path: str, root: Path, base: str, head: str | None, config: Config,
-           input_format: str | None) -> FileSides:
+def _start(path: str, root: Path, base: str, head: str | None, config: Config,
+           input_format: str | None) -> tuple[Comparison, Model | None]:
+    """Read both sides of ``path`` and start comparing them; also head's model.
+
+    A large modified file goes to :func:`gate.start_forked`: base is read, checked
+    and diffed in forked children while this process checks head, so base is never
+    built here. Otherwise both sides are read here (:func:`gate.start_compare`).
+    """
     head_data = _worktree_bytes(root, path) if head is None else _blob(head, root, path)
-    base_data = _blob(base, root, path)
-    if head_data is None and base_data is None:
+    base_bytes = gitsource.start_blob(base, str(root / path), root)  # inflated while head is parsed
+    if head_data is None and base_bytes is None:
         where = "in the working tree" if head is None else f"at {head}"
         raise InputError(f"{path}: exists neither {where} nor at the base {base[:12]}.")
-    head_origin = path if head is None else f"{head}:{path}"
-    head_model = _read(head_data, head_origin, config, input_format)
-    base_model = head_model if base_data == head_data else _read(
-        base_data, f"{base[:12]}:{path}", config, input_format)
-    return FileSides(path, base_model, head_model, base_data, head_data)
+    origins = {"head": path if head is None else f"{head}:{path}", "base": f"{base[:12]}:{path}"}
+
+    def read(side: str):  # a side from its bytes (again, should a forked child fail)
+        return _read(head_data if side == "head" else base_data, origins[side], config, input_format)
+
+    try:
+        head_model = read("head")
+    except BaseException:  # a bad head: let git finish, then report head's error
+        try:
+            base_bytes() if base_bytes is not None else None
+        except GitError:
+            pass
+        raise
+    base_data = None if base_bytes is None else base_bytes()
+    if forks(head_model, base_data, head_data) and background.forkable():
+        return start_forked(path, head_model, head_data, base_data, read, config), head_model
+    base_model = head_model if base_data == head_data else read("base")
+    return start_compare(FileSides(path, base_model, head_model, base_data, head_data), config), head_model
 
 
 def _paths(paths: list[str], cwd: Path) -> list[str]:
@@ -95,16 +123,16 @@ def _paths(paths: list[str], cwd: Path) -> list[str]:
     return list(seen)
 
 
-def _embedding_checks(path: str | None, sides: list[FileSides]) -> tuple[tuple, tuple[str, ...]]:
-    """Verify the embedding at ``path`` against each head model; notes for absent ones."""
+def _embedding_checks(path: str | None, file: str, head: Model | None) -> tuple[tuple, tuple[str, ...]]:
+    """Verify the embedding at ``path`` against head's model of ``file``, or a note
+    when ``file`` is absent on head."""
     if path is None:
         return (), ()
+    if head is None:
+        return (), (f"{file}: absent on head, so the embedding was not verified against it.",)
     from tracecheck.embedding import verify_file  # numpy work only when asked for
 
-    checks = tuple((s.path, verify_file(s.head, path)) for s in sides if s.head is not None)
-    absent = tuple(f"{s.path}: absent on head, so the embedding was not verified against it."
-                   for s in sides if s.head is None)
-    return checks, absent
+    return ((file, verify_file(head, path)),), ()
 
 
 def run(
@@ -148,12 +176,14 @@ def _run(paths, base, head, exact_base, fmt, output, config_option, input_format
     with late_progress("gate", enabled=progress_enabled(options.quiet)) as step:
         for n, path in enumerate(relative):
             step(n / len(relative), f"reading {path}")
-            sides = _sides(path, root, base_commit, head, config, input_format)
+            comparison, head_model = _start(path, root, base_commit, head, config, input_format)
             step((n + 0.5) / len(relative), f"comparing {path}")
-            outcomes.append(compare_file(sides, config))
-            more_checks, more_absent = _embedding_checks(embedding, [sides])
+            more_checks, more_absent = _embedding_checks(embedding, path, head_model)
             checks, absent = checks + more_checks, absent + more_absent
-            del sides  # each file's models are freed before the next is read
+            # Each file's models are freed before the next is read; on a large file,
+            # while forked children still diff and check (they hold their own copies).
+            del head_model
+            outcomes.append(comparison.result())
     old = {id(f) for o in outcomes for f in o.head_findings} - {id(f) for o in outcomes for f in o.new}
     review = apply_review(
         [f for o in outcomes for f in o.head_findings], config, cwd,

@@ -10,7 +10,7 @@ import operator
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from itertools import chain, compress, repeat
+from itertools import chain, compress, filterfalse, repeat
 from typing import Any
 
 from tracecheck.caution import caution
@@ -153,8 +153,8 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
                 entry["old_id"] = old_id
             modified.append(entry)
     return {
-        "added": sorted(i for i in new_side.ids if i not in image),
-        "removed": sorted(i for i in old_side.ids if i not in mapping),
+        "added": sorted(filterfalse(image.__contains__, new_side.ids)),
+        "removed": sorted(filterfalse(mapping.__contains__, old_side.ids)),
         "modified": modified,
         "moved": moves(old, new, mapping),
         "reidentified": [{"old": o, "new": n, "score": s} for o, n, s in matching.reidentified],

@@ -14,8 +14,7 @@ import re
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-
-import networkx as nx
+from itertools import filterfalse
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
@@ -277,6 +276,8 @@ def _assign(scored: list[tuple[str, str, float]], threshold: float) -> list[tupl
     summed scores would prefer two pairs just above the threshold (0.55 + 0.55) to one
     exact pair (1.0) and a leftover, splitting a true renumbering to make a false one.
     """
+    import networkx as nx  # only when some elements are left to pair (about 0.1 s to import)
+
     graph = nx.Graph()
     for old_id, new_id, score in sorted(scored):
         gain = score - threshold + 1e-6 + _tie_break(old_id, new_id)
@@ -339,9 +340,10 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     # built except for the unmatched elements that are scored.
     old_side, new_side = side_of(old), side_of(new)
     in_new = new_side.position
-    mapping = {i: i for i in old_side.ids if i in in_new}
-    old_left = [i for i in old_side.ids if i not in mapping]
-    new_left = [i for i in new_side.ids if i not in mapping]
+    shared = list(filter(in_new.__contains__, old_side.ids))  # C-level passes, in old order
+    mapping = dict(zip(shared, shared, strict=True))
+    old_left = list(filterfalse(mapping.__contains__, old_side.ids))
+    new_left = list(filterfalse(mapping.__contains__, new_side.ids))
     if not old_left or not new_left:
         return Matching(mapping, [])
     identity = {i: i for i in mapping}

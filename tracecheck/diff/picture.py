@@ -14,10 +14,12 @@ gets its own row, so every label stays legible however many elements changed; pa
 from __future__ import annotations
 
 from dataclasses import dataclass
-
-import networkx as nx
+from typing import TYPE_CHECKING
 
 from tracecheck.model import Model
+
+if TYPE_CHECKING:
+    import networkx as nx
 
 __all__ = ["Picture", "Page", "neighbourhood_picture", "PAGE_SIZE", "COLUMNS"]
 
@@ -107,6 +109,8 @@ def _order(graph: nx.Graph, columns: dict[int, list[str]]) -> dict[int, list[str
 
 
 def _page(old: Model, new: Model, drawn: set[str], status: dict, kinds: dict, removed: set, added: set) -> Page:
+    import networkx as nx  # only the HTML view draws a picture (about 0.1 s to import)
+
     edges, context = _page_edges(old, new, drawn, kinds, removed, added)
     graph = nx.Graph()
     for node in sorted(drawn | context):

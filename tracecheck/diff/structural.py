@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 import difflib
+import operator
 import re
 from collections import defaultdict
 from collections.abc import Mapping
-from itertools import repeat
+from itertools import compress, repeat
 from typing import Any
 
 import numpy as np
@@ -94,14 +95,13 @@ def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
 
 def moves(old: Model, new: Model, mapping: Mapping[str, str]) -> list[dict[str, str | None]]:
     """Matched elements whose parent, seen through the mapping, is a different element."""
-    found = []
-    old_parent, new_parent = side_of(old).parent, side_of(new).parent
-    for old_id, new_id in mapping.items():
-        before = old_parent(old_id)
-        after = new_parent(new_id)
-        translated = None if before is None else mapping.get(before, before)
-        if translated != after:
-            found.append({"id": new_id, "old_parent": before, "new_parent": after})
+    # All pairs in C-level map passes; a dict is built only for the few that moved.
+    # (A parent of None maps to itself: mapping.get(None, None).)
+    olds, news = list(mapping), list(mapping.values())
+    befores, afters = side_of(old).parents(olds), side_of(new).parents(news)
+    moved = map(operator.ne, map(mapping.get, befores, befores), afters)
+    found = [{"id": new_id, "old_parent": before, "new_parent": after}
+             for new_id, before, after in compress(zip(news, befores, afters, strict=True), moved)]
     return sorted(found, key=lambda m: m["id"])
 
 
