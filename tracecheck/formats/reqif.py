@@ -48,6 +48,7 @@ import json
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from operator import attrgetter
 from typing import Any
 
 from lxml import etree
@@ -434,50 +435,125 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         return _parse(data, origin, options)
 
 
+_CONTAINERS = (_R + "SPEC-OBJECTS", _R + "SPEC-RELATIONS", _R + "CHILDREN")
+_DECLARATIONS = (_R + "DATATYPE-DEFINITION-ENUMERATION", _R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE",
+                 _R + "TITLE")
+_NS = {"r": NAMESPACE}
+
+
+def _xpath(path: str) -> Any:
+    return etree.XPath(path, namespaces=_NS, smart_strings=False)
+
+
+class _RelationQueries:
+    """Columns of a batch of SPEC-RELATIONs, each one compiled XPath evaluated in C.
+
+    The batch is the container's SPEC-RELATION children, all but the last when
+    ``but_last`` (the parser may still be inside it). Each reference is the first text
+    node of the first reference element, and counts say whether each relation has
+    exactly one of each (the first child node of a reference is text exactly when
+    ``.text`` finds it): otherwise the one-by-one path reads the batch.
+    """
+
+    def __init__(self, but_last: bool) -> None:
+        r = "r:SPEC-RELATION[position() < last()]" if but_last else "r:SPEC-RELATION"
+        self.records = _xpath(r)
+        self.count = _xpath("count(r:SPEC-RELATION)")
+        self.refs = [
+            (_xpath(f"{r}/r:{outer}[1]/r:{inner}[1]/node()[1]"), _xpath(f"count({r}/r:{outer}) + count({r}/r:{outer}/*)"))
+            for outer, inner in (("SOURCE", "SPEC-OBJECT-REF"), ("TARGET", "SPEC-OBJECT-REF"),
+                                 ("TYPE", "SPEC-RELATION-TYPE-REF"))
+        ]
+        self.values = _xpath(f"count({r}/r:VALUES)")
+
+
+_RELATION_QUERIES = {but_last: _RelationQueries(but_last) for but_last in (False, True)}
+_LINE = attrgetter("sourceline")
+
+
 def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
     reader = _Reader(origin, options or {})
-    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
-                               root=_R + "REQ-IF", format_name="ReqIF 1.2")
-    # Relations, then objects, are most records: test for them first with bound methods.
-    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
-    for _event, elem in events:
-        tag = elem.tag
-        if tag == _SPEC_RELATION:
-            spec_relation(elem)
-        elif tag == _SPEC_OBJECT:
-            spec_object(elem)
-        elif tag == _HIERARCHY:
-            hierarchy_end(elem)
+    declared = False
+    for element, count, _last, pending in xmlsafe.batches(data, origin, containers=_CONTAINERS,
+                                                          root=_R + "REQ-IF", format_name="ReqIF 1.2"):
+        if not declared:  # types and enumerations come before the objects (ReqIF 1.2, REQ-IF-CONTENT)
+            _declarations(reader, element if count is None else element.getroottree().getroot())
+            declared = True
+        if count is None:  # the whole document has been read: what follows the containers
+            for extension in element.iter(_R + "REQ-IF-TOOL-EXTENSION"):
+                reader.tool_extension(extension)
+        elif element.tag == _R + "SPEC-RELATIONS":
+            in_progress = pending is not None and pending.tag == _SPEC_RELATION
+            if not _relation_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
         else:
-            _dispatch(reader, elem)
-            continue
-        # xmlsafe.release, inline: free the record and the siblings read before it
-        elem.clear(keep_tail=False)
-        parent = elem.getparent()
-        if parent is not None:
-            while elem.getprevious() is not None:
-                del parent[0]
+            _one_by_one(reader, element, count)
     return reader.model()
+
+
+def _declarations(reader: _Reader, document: Any) -> None:
+    for elem in document.iter(_DECLARATIONS):
+        _dispatch(reader, elem)
+
+
+def _one_by_one(reader: _Reader, container: Any, count: int) -> None:
+    """Records of a batch one at a time, in the order their ends occur."""
+    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
+    for kid in container[:count]:
+        if not isinstance(kid.tag, str):
+            continue
+        for _event, elem in etree.iterwalk(kid, events=("end",), tag=(_SPEC_RELATION, _SPEC_OBJECT, _HIERARCHY)):
+            tag = elem.tag
+            if tag == _SPEC_RELATION:
+                spec_relation(elem)
+            elif tag == _SPEC_OBJECT:
+                spec_object(elem)
+            else:
+                hierarchy_end(elem)
+
+
+def _relation_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Read a batch of SPEC-RELATIONs that carry no values by columns; ``False`` if it cannot.
+
+    ``in_progress``: the container's child after the batch is a SPEC-RELATION the
+    parser may still be inside (the queries leave it out).
+    """
+    queries = _RELATION_QUERIES[in_progress]
+    size = int(queries.count(container)) - in_progress
+    if size != count or queries.values(container):
+        return False  # other children, or values: the one-by-one path
+    columns = []
+    for texts, counted in queries.refs:
+        column = texts(container)
+        if len(column) != size or counted(container) != 2 * size or (size and set(map(type, column)) != {str}):
+            return False  # a missing or repeated reference: the one-by-one path says which
+        column = list(map(str.strip, column))
+        if "" in column:
+            return False
+        columns.append(column)
+    sources, targets, types = columns
+    known = reader.types
+    if any(ref not in known or known[ref][1] for ref in set(types)):
+        return False  # an unknown type, or one whose defaults give the relations values
+    ident_to_id = reader.ident_to_id
+    if ident_to_id:
+        sources = list(map(ident_to_id.get, sources, sources))
+        targets = list(map(ident_to_id.get, targets, targets))
+    records = queries.records(container)
+    lines = list(map(_LINE, records))
+    del records  # see xmlsafe.batches: the records are deleted next
+    reader.links.extend(zip(sources, targets, types, [None] * size, [{} for _ in range(size)], lines, strict=True))
+    return True
 
 
 def _dispatch(reader: _Reader, elem: Any) -> None:
     tag = elem.tag
-    if tag == _SPEC_OBJECT:
-        reader.spec_object(elem)
-    elif tag == _SPEC_RELATION:
-        reader.spec_relation(elem)
-    elif tag == _HIERARCHY:
-        reader.hierarchy_end(elem)
-    elif tag == _R + "DATATYPE-DEFINITION-ENUMERATION":
+    if tag == _R + "DATATYPE-DEFINITION-ENUMERATION":
         reader.enumeration(elem)
     elif tag in (_R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE"):
         reader.spec_type(elem, relation=tag == _R + "SPEC-RELATION-TYPE")
     elif tag == _R + "TITLE":
         reader.title = (elem.text or "").strip() or None
-        return
-    elif tag == _R + "REQ-IF-TOOL-EXTENSION":
-        reader.tool_extension(elem)
-    xmlsafe.release(elem)
 
 
 # --- writing ---------------------------------------------------------------------------
