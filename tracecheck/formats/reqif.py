@@ -438,7 +438,7 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
 _CONTAINERS = (_R + "SPEC-OBJECTS", _R + "SPEC-RELATIONS", _R + "CHILDREN")
 _DECLARATIONS = (_R + "DATATYPE-DEFINITION-ENUMERATION", _R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE",
                  _R + "TITLE")
-_NS = {"r": NAMESPACE}
+_NS = {"r": NAMESPACE, "h": XHTML}
 
 
 def _xpath(path: str) -> Any:
@@ -468,6 +468,118 @@ class _RelationQueries:
 
 
 _RELATION_QUERIES = {but_last: _RelationQueries(but_last) for but_last in (False, True)}
+
+
+class _ObjectQueries:
+    """Columns of a batch of SPEC-OBJECTs whose values are strings and XHTML, in C.
+
+    As :class:`_RelationQueries`; the counts in ``checks`` must come out as the
+    reader expects (see :func:`_object_columns`) for the columns to line up with the
+    objects and their values, and an XHTML value is read this way only when its
+    ``THE-VALUE`` holds a single ``<div>`` with one text node (what ``flatten_xhtml``
+    returns verbatim).
+    """
+
+    def __init__(self, but_last: bool) -> None:
+        r = "r:SPEC-OBJECT[position() < last()]" if but_last else "r:SPEC-OBJECT"
+        v, s, x = f"{r}/r:VALUES", f"{r}/r:VALUES/r:ATTRIBUTE-VALUE-STRING", f"{r}/r:VALUES/r:ATTRIBUTE-VALUE-XHTML"
+        div = f"{x}/r:THE-VALUE/h:div"
+        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-OBJECT)")
+        self.idents, self.long_names = _xpath(f"{r}/@IDENTIFIER"), _xpath(f"{r}/@LONG-NAME")
+        self.types = _xpath(f"{r}/r:TYPE[1]/r:SPEC-OBJECT-TYPE-REF[1]/node()[1]")
+        self.values = _xpath(v)
+        self.definitions = _xpath(f"{v}/*/r:DEFINITION/*/node()[1]")
+        self.strings, self.texts = _xpath(f"{s}/@THE-VALUE"), _xpath(f"{div}/text()")
+        # name -> (count, what it must equal: "size", "items", "strings", "xhtml" or 0)
+        self.checks = {
+            f"count({r}/r:TYPE) + count({r}/r:TYPE/*)": "2size",
+            f"count({v}[1])": "values", f"count({v}/*)": "items",
+            f"count({v}/*/r:DEFINITION) + count({v}/*/r:DEFINITION/*)": "2items",
+            f"count({s}) + count({x})": "items",
+            f"count({s}/r:DEFINITION/r:ATTRIBUTE-DEFINITION-STRING-REF)": "strings",
+            f"count({x}/r:DEFINITION/r:ATTRIBUTE-DEFINITION-XHTML-REF)": "xhtml",
+            f"count({x}/r:THE-VALUE) + count({x}/r:THE-VALUE[1])": "2xhtml",
+            f"count({x}/r:THE-VALUE/*) + count({x}/r:THE-VALUE/*[1])": "2xhtml",
+            f"count({div}) + count({div}/text()[1])": "2xhtml",
+            f"count({div}/node())": "xhtml",
+        }
+        self.compiled = [(_xpath(path), want) for path, want in self.checks.items()]
+        self.strings_count = _xpath(f"count({s})")
+
+
+_OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
+
+
+def _object_queries(but_last: bool) -> _ObjectQueries:
+    if but_last not in _OBJECT_QUERIES:
+        _OBJECT_QUERIES[but_last] = _ObjectQueries(but_last)
+    return _OBJECT_QUERIES[but_last]
+
+
+def _object_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Read a batch of SPEC-OBJECTs by columns; ``False`` if it cannot vouch for them.
+
+    Only objects whose values are strings and single-``<div>`` XHTML of definitions
+    that are not JSON-marked, of types without default values; anything else (and
+    every error) goes through the one-by-one path.
+    """
+    queries = _object_queries(in_progress)
+    size = int(queries.count(container)) - in_progress
+    idents = queries.idents(container)
+    if size != count or len(idents) != size or "" in idents:
+        return False
+    types = queries.types(container)
+    if len(types) != size or (size and set(map(type, types)) != {str}):
+        return False
+    types = list(map(str.strip, types))
+    known = reader.types
+    if any(ref not in known or known[ref][1] for ref in set(types)):
+        return False
+    values = queries.values(container)
+    if len(values) not in (0, size):
+        return False  # some objects without VALUES: the one-by-one path
+    counts = list(map(len, values)) if values else [0] * size
+    del values
+    items = sum(counts)
+    strings = int(queries.strings_count(container))
+    want = {"2size": 2 * size, "values": len(counts) if items else 0, "items": items, "2items": 2 * items,
+            "strings": strings, "xhtml": items - strings, "2xhtml": 2 * (items - strings)}
+    if any(int(check(container)) != want[name] for check, name in queries.compiled):
+        return False
+    definitions = reader.definitions
+    try:
+        found = [definitions[ref.strip()] for ref in queries.definitions(container)]
+    except (KeyError, AttributeError):
+        return False  # an unknown definition, or a reference that is not text
+    if len(found) != items or any(d.as_json or d.kind not in ("STRING", "XHTML") for d in set(found)):
+        return False
+    string_values, texts = iter(queries.strings(container)), iter(queries.texts(container))
+    flat = [next(string_values) if d.kind == "STRING" else next(texts) for d in found]
+    names = [d.name for d in found]
+    long_names = queries.long_names(container) if reader.opts["name"] == "LONG-NAME" else []
+    if len(long_names) != size:
+        if long_names:
+            return False  # some objects have a LONG-NAME: which ones, the one-by-one path knows
+        long_names = [None] * size
+    records = queries.records(container)
+    lines = list(map(_LINE, records))
+    del records  # see xmlsafe.batches: the records are deleted next
+    opts = reader.opts
+    id_key, text_key, parent_key = opts["id_attribute"], opts["text"], opts["parent_attribute"]
+    name_key = None if opts["name"] == "LONG-NAME" else opts["name"]
+    start, out, ident_to_id = 0, reader.records, reader.ident_to_id
+    for ident, type_ref, long_name, size_, line in zip(idents, types, long_names, counts, lines, strict=True):
+        end = start + size_
+        attributes = dict(zip(names[start:end], flat[start:end], strict=True))
+        start = end
+        element_id = attributes.pop(id_key, None) or ident
+        if element_id != ident:
+            ident_to_id[ident] = element_id
+        text = attributes.pop(text_key, None)
+        name = long_name if name_key is None else attributes.pop(name_key, None)
+        parent = attributes.pop(parent_key, None)
+        out.append((ident, element_id, type_ref, name, text, parent, attributes, line))
+    return True
 _LINE = attrgetter("sourceline")
 
 
@@ -485,6 +597,10 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
         elif element.tag == _R + "SPEC-RELATIONS":
             in_progress = pending is not None and pending.tag == _SPEC_RELATION
             if not _relation_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
+        elif element.tag == _R + "SPEC-OBJECTS":
+            in_progress = pending is not None and pending.tag == _SPEC_OBJECT
+            if not _object_columns(reader, element, count, in_progress):
                 _one_by_one(reader, element, count)
         else:
             _one_by_one(reader, element, count)
