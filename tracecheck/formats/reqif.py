@@ -449,22 +449,19 @@ class _RelationQueries:
     """Columns of a batch of SPEC-RELATIONs, each one compiled XPath evaluated in C.
 
     The batch is the container's SPEC-RELATION children, all but the last when
-    ``but_last`` (the parser may still be inside it). Each reference is the first text
-    node of the first reference element, and counts say whether each relation has
-    exactly one of each (the first child node of a reference is text exactly when
-    ``.text`` finds it): otherwise the one-by-one path reads the batch.
+    ``but_last`` (the parser may still be inside it). Each reference is the first
+    child node of the first reference element of the first SOURCE, TARGET or TYPE,
+    taken when it is text (which is when ``.text`` finds it); one count of all the
+    elements inside the relations says whether there was nothing else (six each: no
+    second SOURCE, no VALUES), otherwise the one-by-one path reads the batch.
     """
 
     def __init__(self, but_last: bool) -> None:
         r = "r:SPEC-RELATION[position() < last()]" if but_last else "r:SPEC-RELATION"
-        self.records = _xpath(r)
-        self.count = _xpath("count(r:SPEC-RELATION)")
-        self.refs = [
-            (_xpath(f"{r}/r:{outer}[1]/r:{inner}[1]/node()[1]"), _xpath(f"count({r}/r:{outer}) + count({r}/r:{outer}/*)"))
-            for outer, inner in (("SOURCE", "SPEC-OBJECT-REF"), ("TARGET", "SPEC-OBJECT-REF"),
-                                 ("TYPE", "SPEC-RELATION-TYPE-REF"))
-        ]
-        self.values = _xpath(f"count({r}/r:VALUES)")
+        self.records, self.count, self.inside = _xpath(r), _xpath("count(r:SPEC-RELATION)"), _xpath(f"count({r}//*)")
+        self.refs = [_xpath(f"{r}/r:{outer}[1]/r:{inner}[1]/node()[1]")
+                     for outer, inner in (("SOURCE", "SPEC-OBJECT-REF"), ("TARGET", "SPEC-OBJECT-REF"),
+                                          ("TYPE", "SPEC-RELATION-TYPE-REF"))]
 
 
 _RELATION_QUERIES = {but_last: _RelationQueries(but_last) for but_last in (False, True)}
@@ -473,38 +470,29 @@ _RELATION_QUERIES = {but_last: _RelationQueries(but_last) for but_last in (False
 class _ObjectQueries:
     """Columns of a batch of SPEC-OBJECTs whose values are strings and XHTML, in C.
 
-    As :class:`_RelationQueries`; the counts in ``checks`` must come out as the
-    reader expects (see :func:`_object_columns`) for the columns to line up with the
-    objects and their values, and an XHTML value is read this way only when its
-    ``THE-VALUE`` holds a single ``<div>`` with one text node (what ``flatten_xhtml``
-    returns verbatim).
+    As :class:`_RelationQueries`: lists taken with ``[1]`` steps have at most one entry
+    per object or value, so a list as long as the batch has exactly one; then one
+    count of all the elements inside the objects says whether there was nothing else
+    (each object: VALUES, TYPE and its reference; each value: itself, DEFINITION and
+    its reference, and for XHTML a THE-VALUE holding one ``<div>``). An XHTML value is
+    read this way only when that ``<div>`` holds one text node, which is what
+    ``flatten_xhtml`` returns verbatim.
     """
 
     def __init__(self, but_last: bool) -> None:
         r = "r:SPEC-OBJECT[position() < last()]" if but_last else "r:SPEC-OBJECT"
-        v, s, x = f"{r}/r:VALUES", f"{r}/r:VALUES/r:ATTRIBUTE-VALUE-STRING", f"{r}/r:VALUES/r:ATTRIBUTE-VALUE-XHTML"
-        div = f"{x}/r:THE-VALUE/h:div"
-        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-OBJECT)")
+        v = f"{r}/r:VALUES[1]"
+        s, x = f"{v}/r:ATTRIBUTE-VALUE-STRING", f"{v}/r:ATTRIBUTE-VALUE-XHTML"
+        div = f"{x}/r:THE-VALUE[1]/h:div[1]"
+        self.records, self.count, self.inside = _xpath(r), _xpath("count(r:SPEC-OBJECT)"), _xpath(f"count({r}//*)")
         self.idents, self.long_names = _xpath(f"{r}/@IDENTIFIER"), _xpath(f"{r}/@LONG-NAME")
         self.types = _xpath(f"{r}/r:TYPE[1]/r:SPEC-OBJECT-TYPE-REF[1]/node()[1]")
         self.values = _xpath(v)
-        self.definitions = _xpath(f"{v}/*/r:DEFINITION/*/node()[1]")
-        self.strings, self.texts = _xpath(f"{s}/@THE-VALUE"), _xpath(f"{div}/text()")
-        # name -> (count, what it must equal: "size", "items", "strings", "xhtml" or 0)
-        self.checks = {
-            f"count({r}/r:TYPE) + count({r}/r:TYPE/*)": "2size",
-            f"count({v}[1])": "values", f"count({v}/*)": "items",
-            f"count({v}/*/r:DEFINITION) + count({v}/*/r:DEFINITION/*)": "2items",
-            f"count({s}) + count({x})": "items",
-            f"count({s}/r:DEFINITION/r:ATTRIBUTE-DEFINITION-STRING-REF)": "strings",
-            f"count({x}/r:DEFINITION/r:ATTRIBUTE-DEFINITION-XHTML-REF)": "xhtml",
-            f"count({x}/r:THE-VALUE) + count({x}/r:THE-VALUE[1])": "2xhtml",
-            f"count({x}/r:THE-VALUE/*) + count({x}/r:THE-VALUE/*[1])": "2xhtml",
-            f"count({div}) + count({div}/text()[1])": "2xhtml",
-            f"count({div}/node())": "xhtml",
-        }
-        self.compiled = [(_xpath(path), want) for path, want in self.checks.items()]
-        self.strings_count = _xpath(f"count({s})")
+        self.definitions = _xpath(f"{v}/*/r:DEFINITION[1]/*[1]/node()[1]")
+        self.string_definitions = _xpath(f"{s}/r:DEFINITION[1]/r:ATTRIBUTE-DEFINITION-STRING-REF[1]/node()[1]")
+        self.xhtml_definitions = _xpath(f"{x}/r:DEFINITION[1]/r:ATTRIBUTE-DEFINITION-XHTML-REF[1]/node()[1]")
+        self.strings, self.texts = _xpath(f"{s}/@THE-VALUE"), _xpath(f"{div}/text()[1]")
+        self.div_nodes = _xpath(f"count({div}/node())")
 
 
 _OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
@@ -536,26 +524,33 @@ def _object_columns(reader: _Reader, container: Any, count: int, in_progress: bo
     if any(ref not in known or known[ref][1] for ref in set(types)):
         return False
     values = queries.values(container)
-    if len(values) not in (0, size):
+    if len(values) != size:
         return False  # some objects without VALUES: the one-by-one path
-    counts = list(map(len, values)) if values else [0] * size
+    counts = list(map(len, values))
     del values
     items = sum(counts)
-    strings = int(queries.strings_count(container))
-    want = {"2size": 2 * size, "values": len(counts) if items else 0, "items": items, "2items": 2 * items,
-            "strings": strings, "xhtml": items - strings, "2xhtml": 2 * (items - strings)}
-    if any(int(check(container)) != want[name] for check, name in queries.compiled):
+    refs = queries.definitions(container)
+    if len(refs) != items or (items and set(map(type, refs)) != {str}):
         return False
+    refs = list(map(str.strip, refs))
     definitions = reader.definitions
-    try:
-        found = [definitions[ref.strip()] for ref in queries.definitions(container)]
-    except (KeyError, AttributeError):
-        return False  # an unknown definition, or a reference that is not text
-    if len(found) != items or any(d.as_json or d.kind not in ("STRING", "XHTML") for d in set(found)):
-        return False
-    string_values, texts = iter(queries.strings(container)), iter(queries.texts(container))
-    flat = [next(string_values) if d.kind == "STRING" else next(texts) for d in found]
-    names = [d.name for d in found]
+    used = set(refs)
+    if any(ref not in definitions or definitions[ref].as_json or definitions[ref].kind not in ("STRING", "XHTML")
+           for ref in used):
+        return False  # an unknown definition (the one-by-one path words it), or another kind of value
+    kinds = [definitions[ref].kind for ref in refs]
+    string_refs = [ref for ref, kind in zip(refs, kinds, strict=True) if kind == "STRING"]
+    xhtml_refs = [ref for ref, kind in zip(refs, kinds, strict=True) if kind == "XHTML"]
+    strings, texts = queries.strings(container), queries.texts(container)
+    if (len(strings) != len(string_refs) or len(texts) != len(xhtml_refs)
+            or list(map(str.strip, queries.string_definitions(container))) != string_refs
+            or list(map(str.strip, queries.xhtml_definitions(container))) != xhtml_refs
+            or queries.div_nodes(container) != len(texts)
+            or queries.inside(container) != 3 * size + 3 * items + 2 * len(texts)):
+        return False  # a value of another shape: the one-by-one path
+    strings_in, texts_in = iter(strings), iter(texts)
+    flat = [next(strings_in) if kind == "STRING" else next(texts_in) for kind in kinds]
+    names = [definitions[ref].name for ref in refs]
     long_names = queries.long_names(container) if reader.opts["name"] == "LONG-NAME" else []
     if len(long_names) != size:
         if long_names:
@@ -636,13 +631,13 @@ def _relation_columns(reader: _Reader, container: Any, count: int, in_progress: 
     """
     queries = _RELATION_QUERIES[in_progress]
     size = int(queries.count(container)) - in_progress
-    if size != count or queries.values(container):
-        return False  # other children, or values: the one-by-one path
+    if size != count or queries.inside(container) != 6 * size:
+        return False  # other children, values, or a reference missing or repeated: the one-by-one path
     columns = []
-    for texts, counted in queries.refs:
+    for texts in queries.refs:
         column = texts(container)
-        if len(column) != size or counted(container) != 2 * size or (size and set(map(type, column)) != {str}):
-            return False  # a missing or repeated reference: the one-by-one path says which
+        if len(column) != size or (size and set(map(type, column)) != {str}):
+            return False  # a missing reference: the one-by-one path says which
         column = list(map(str.strip, column))
         if "" in column:
             return False
