@@ -48,6 +48,7 @@ import json
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import repeat
 from operator import attrgetter
 from typing import Any
 
@@ -498,6 +499,68 @@ class _ObjectQueries:
 _OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
 
 
+class _HierarchyQueries:
+    """The SPEC-HIERARCHY trees of a batch of the top CHILDREN's children, in C.
+
+    Every hierarchy's object reference (``[1]`` steps, as for relations), and the
+    CHILDREN elements inside, whose own hierarchies are their parent's children.
+    """
+
+    def __init__(self, but_last: bool) -> None:
+        r = "r:SPEC-HIERARCHY[position() < last()]" if but_last else "r:SPEC-HIERARCHY"
+        h = f"{r}/descendant-or-self::r:SPEC-HIERARCHY"
+        self.top, self.all, self.with_object = _xpath("count(r:SPEC-HIERARCHY)"), _xpath(f"count({h})"), \
+            _xpath(f"count({h}/r:OBJECT)")
+        self.objects = _xpath(f"{h}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+        self.groups, self.grouped = _xpath(f"{h}/r:CHILDREN"), _xpath(f"count({h}/r:CHILDREN/r:SPEC-HIERARCHY)")
+
+
+_HIERARCHY_QUERIES = {but_last: _HierarchyQueries(but_last) for but_last in (False, True)}
+_GROUP_PARENT = _xpath("../r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+_GROUP_MEMBERS = _xpath("r:SPEC-HIERARCHY/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+
+
+def _texts(values: list[Any]) -> list[str] | None:
+    """References as stripped text, or ``None`` if one is not text or is blank."""
+    if values and set(map(type, values)) != {str}:
+        return None
+    stripped = list(map(str.strip, values))
+    return None if "" in stripped else stripped
+
+
+def _hierarchy_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Parents from a batch of hierarchy trees by columns; ``False`` if it cannot vouch.
+
+    Taken this way only when no object is placed twice (then the order in which
+    hierarchies end, which decides the one-by-one path's first-wins, does not
+    matter) and the parents are few (one XPath pair per parent).
+    """
+    queries = _HIERARCHY_QUERIES[in_progress]
+    top = int(queries.top(container)) - in_progress
+    size = int(queries.all(container))
+    if top != count or queries.with_object(container) != size:
+        return False
+    objects = _texts(queries.objects(container))
+    if objects is None or len(objects) != size:
+        return False  # a hierarchy without an object: the one-by-one path words it
+    groups = queries.groups(container)
+    if len(groups) > max(8, size // 8) or queries.grouped(container) != size - top:
+        return False
+    pairs: list[tuple[str, str]] = []
+    for group in groups:
+        parent, members = _texts(_GROUP_PARENT(group)), _texts(_GROUP_MEMBERS(group))
+        if parent is None or len(parent) != 1 or members is None:
+            return False
+        pairs.extend(zip(members, repeat(parent[0])))
+    del groups
+    parent_of = reader.parent_of
+    placed = set(objects)
+    if len(pairs) != size - top or len(placed) != size or not placed.isdisjoint(parent_of):
+        return False
+    parent_of.update(pairs)
+    return True
+
+
 def _object_queries(but_last: bool) -> _ObjectQueries:
     if but_last not in _OBJECT_QUERIES:
         _OBJECT_QUERIES[but_last] = _ObjectQueries(but_last)
@@ -598,7 +661,9 @@ def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model
             if not _object_columns(reader, element, count, in_progress):
                 _one_by_one(reader, element, count)
         else:
-            _one_by_one(reader, element, count)
+            in_progress = pending is not None and pending.tag == _HIERARCHY
+            if not _hierarchy_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
     return reader.model()
 
 
