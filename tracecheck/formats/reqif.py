@@ -452,14 +452,17 @@ class _RelationQueries:
     The batch is the container's SPEC-RELATION children, all but the last when
     ``but_last`` (the parser may still be inside it). Each reference is the first
     child node of the first reference element of the first SOURCE, TARGET or TYPE,
-    taken when it is text (which is when ``.text`` finds it); one count of all the
-    elements inside the relations says whether there was nothing else (six each: no
+    taken when it is text (which is when ``.text`` finds it); one count of the
+    elements two levels down says whether there was nothing else (six a relation: no
     second SOURCE, no VALUES), otherwise the one-by-one path reads the batch.
     """
 
     def __init__(self, but_last: bool) -> None:
         r = "r:SPEC-RELATION[position() < last()]" if but_last else "r:SPEC-RELATION"
-        self.records, self.count, self.inside = _xpath(r), _xpath("count(r:SPEC-RELATION)"), _xpath(f"count({r}//*)")
+        # Child steps only: libxml2 merges the results of a descendant step per context
+        # node with a duplicate check, which grows with the square of the batch.
+        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-RELATION)")
+        self.inside = _xpath(f"count({r}/*) + count({r}/*/*)")
         self.refs = [_xpath(f"{r}/r:{outer}[1]/r:{inner}[1]/node()[1]")
                      for outer, inner in (("SOURCE", "SPEC-OBJECT-REF"), ("TARGET", "SPEC-OBJECT-REF"),
                                           ("TYPE", "SPEC-RELATION-TYPE-REF"))]
@@ -473,9 +476,10 @@ class _ObjectQueries:
 
     As :class:`_RelationQueries`: lists taken with ``[1]`` steps have at most one entry
     per object or value, so a list as long as the batch has exactly one; then one
-    count of all the elements inside the objects says whether there was nothing else
-    (each object: VALUES, TYPE and its reference; each value: itself, DEFINITION and
-    its reference, and for XHTML a THE-VALUE holding one ``<div>``). An XHTML value is
+    count of the elements inside the objects (down to the values' references and
+    ``<div>``) says whether there was nothing else (each object: VALUES, TYPE and its
+    reference; each value: itself, DEFINITION and its reference, and for XHTML a
+    THE-VALUE holding one ``<div>``). An XHTML value is
     read this way only when that ``<div>`` holds one text node, which is what
     ``flatten_xhtml`` returns verbatim.
     """
@@ -485,7 +489,8 @@ class _ObjectQueries:
         v = f"{r}/r:VALUES[1]"
         s, x = f"{v}/r:ATTRIBUTE-VALUE-STRING", f"{v}/r:ATTRIBUTE-VALUE-XHTML"
         div = f"{x}/r:THE-VALUE[1]/h:div[1]"
-        self.records, self.count, self.inside = _xpath(r), _xpath("count(r:SPEC-OBJECT)"), _xpath(f"count({r}//*)")
+        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-OBJECT)")
+        self.inside = _xpath(f"count({r}/*) + count({r}/*/*) + count({r}/r:VALUES/*/*) + count({r}/r:VALUES/*/*/*)")
         self.idents, self.long_names = _xpath(f"{r}/@IDENTIFIER"), _xpath(f"{r}/@LONG-NAME")
         self.types = _xpath(f"{r}/r:TYPE[1]/r:SPEC-OBJECT-TYPE-REF[1]/node()[1]")
         self.values = _xpath(v)
@@ -499,23 +504,9 @@ class _ObjectQueries:
 _OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
 
 
-class _HierarchyQueries:
-    """The SPEC-HIERARCHY trees of a batch of the top CHILDREN's children, in C.
-
-    Every hierarchy's object reference (``[1]`` steps, as for relations), and the
-    CHILDREN elements inside, whose own hierarchies are their parent's children.
-    """
-
-    def __init__(self, but_last: bool) -> None:
-        r = "r:SPEC-HIERARCHY[position() < last()]" if but_last else "r:SPEC-HIERARCHY"
-        h = f"{r}/descendant-or-self::r:SPEC-HIERARCHY"
-        self.top, self.all, self.with_object = _xpath("count(r:SPEC-HIERARCHY)"), _xpath(f"count({h})"), \
-            _xpath(f"count({h}/r:OBJECT)")
-        self.objects = _xpath(f"{h}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
-        self.groups, self.grouped = _xpath(f"{h}/r:CHILDREN"), _xpath(f"count({h}/r:CHILDREN/r:SPEC-HIERARCHY)")
-
-
-_HIERARCHY_QUERIES = {but_last: _HierarchyQueries(but_last) for but_last in (False, True)}
+_TOP_OBJECTS = {but_last: _xpath(f"{r}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+                for but_last, r in ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))}
+_TOP_COUNT = _xpath("count(r:SPEC-HIERARCHY) + count(r:SPEC-HIERARCHY/r:OBJECT)")
 _GROUP_PARENT = _xpath("../r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
 _GROUP_MEMBERS = _xpath("r:SPEC-HIERARCHY/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
 
@@ -532,31 +523,36 @@ def _hierarchy_columns(reader: _Reader, container: Any, count: int, in_progress:
     """Parents from a batch of hierarchy trees by columns; ``False`` if it cannot vouch.
 
     Taken this way only when no object is placed twice (then the order in which
-    hierarchies end, which decides the one-by-one path's first-wins, does not
-    matter) and the parents are few (one XPath pair per parent).
+    hierarchies end, which decides the one-by-one path's first-wins, does not matter)
+    and the parents are few: one XPath pair per CHILDREN element, found by lxml's
+    C iteration (an XPath descendant step merges its results with a duplicate check
+    that grows with the square of the batch).
     """
-    queries = _HIERARCHY_QUERIES[in_progress]
-    top = int(queries.top(container)) - in_progress
-    size = int(queries.all(container))
-    if top != count or queries.with_object(container) != size:
+    tops = container[:count]
+    if any(top.tag != _HIERARCHY for top in tops):
         return False
-    objects = _texts(queries.objects(container))
-    if objects is None or len(objects) != size:
-        return False  # a hierarchy without an object: the one-by-one path words it
-    groups = queries.groups(container)
-    if len(groups) > max(8, size // 8) or queries.grouped(container) != size - top:
+    objects = _texts(_TOP_OBJECTS[in_progress](container))
+    if objects is None or len(objects) != count or _TOP_COUNT(container) != 2 * (count + in_progress):
+        return False  # a hierarchy without an object, or with two: the one-by-one path
+    hierarchies = sum(1 for top in tops for _ in top.iter(_HIERARCHY))
+    groups = [group for top in tops for group in top.iter(_R + "CHILDREN")]
+    del tops
+    if len(groups) > max(8, hierarchies // 8):
         return False
     pairs: list[tuple[str, str]] = []
     for group in groups:
         parent, members = _texts(_GROUP_PARENT(group)), _texts(_GROUP_MEMBERS(group))
         if parent is None or len(parent) != 1 or members is None:
             return False
+        if _TOP_COUNT(group) != 2 * len(members):
+            return False
         pairs.extend(zip(members, repeat(parent[0])))
     del groups
+    objects.extend(child for child, _parent in pairs)
     parent_of = reader.parent_of
     placed = set(objects)
-    if len(pairs) != size - top or len(placed) != size or not placed.isdisjoint(parent_of):
-        return False
+    if len(objects) != hierarchies or len(placed) != hierarchies or not parent_of.keys().isdisjoint(placed):
+        return False  # a hierarchy outside CHILDREN, or an object placed twice
     parent_of.update(pairs)
     return True
 
