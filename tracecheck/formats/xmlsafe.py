@@ -213,11 +213,12 @@ def batches(
     containers: Iterable[str],
     root: str | None = None,
     format_name: str = "",
-    chunk: int = CHUNK,
+    chunk: int | None = None,
 ) -> Iterator[Batch]:
     """Stream ``data`` with the hardened options, handing over records in batches.
 
-    The document is fed to a pull parser ``chunk`` bytes at a time. Records are the
+    The document is fed to a pull parser ``chunk`` bytes (default :data:`CHUNK`) at a
+    time. Records are the
     children of a *container* element (``containers`` are tags; one container is open
     at a time, and a container tag inside an open container's record is part of that
     record): after each chunk, the children the parser has finished are handed over
@@ -244,6 +245,7 @@ def batches(
     parser = etree.XMLPullParser(events=("start",), tag=tuple(containers), remove_blank_text=False,
                                  **SAFE_OPTIONS)
     active: Any = None
+    chunk = chunk or CHUNK
     try:
         for offset in range(0, max(len(data), 1), chunk):
             parser.feed(data[offset : offset + chunk])
