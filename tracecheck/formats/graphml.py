@@ -20,8 +20,9 @@ without ``attr.name`` (drawing data of graph editors) are skipped. Lists, which 
 lacks, are written as JSON text in a string key whose ``<desc>`` is ``tracecheck:json``
 and read back as lists. The edge direction is always source -> target.
 
-The reader streams the document (iterparse, each node and edge cleared once read), so
-memory follows the size of the model, not of the XML tree.
+The reader streams the document (:func:`xmlsafe.batches`: the nodes and edges finished
+in each parsed chunk are read together by XPath columns, then deleted), so memory
+follows the size of the model, not of the XML tree.
 """
 
 from __future__ import annotations

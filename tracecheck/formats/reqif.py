@@ -414,11 +414,6 @@ def _walk(node: Any, parts: list[str]) -> None:
         parts.append(child.tail or "")
 
 
-_TAGS = tuple(_R + t for t in (
-    "DATATYPE-DEFINITION-ENUMERATION", "SPEC-OBJECT-TYPE", "SPEC-RELATION-TYPE",
-    "SPECIFICATION-TYPE", "RELATION-GROUP-TYPE", "SPEC-OBJECT", "SPEC-RELATION",
-    "SPEC-HIERARCHY", "SPECIFICATION", "TITLE", "REQ-IF-TOOL-EXTENSION",
-))
 _SPEC_OBJECT, _SPEC_RELATION, _HIERARCHY = _R + "SPEC-OBJECT", _R + "SPEC-RELATION", _R + "SPEC-HIERARCHY"
 
 
