@@ -503,6 +503,10 @@ _TOP_OBJECTS = {but_last: _xpath(f"{r}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1
                 for but_last, r in ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))}
 _TOP_COUNT = _xpath("count(r:SPEC-HIERARCHY) + count(r:SPEC-HIERARCHY/r:OBJECT)")
 _GROUP_PARENT = _xpath("../r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+_TREES = ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))
+_TREE_SIZE = {but_last: _xpath(f"count({r}/descendant-or-self::r:SPEC-HIERARCHY)") for but_last, r in _TREES}
+_GROUPS = {but_last: _xpath(f"{r}/descendant::r:CHILDREN") for but_last, r in _TREES}
+_ELEMENT_COUNT = _xpath("count(*)")
 _GROUP_MEMBERS = _xpath("r:SPEC-HIERARCHY/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
 
 
@@ -519,19 +523,17 @@ def _hierarchy_columns(reader: _Reader, container: Any, count: int, in_progress:
 
     Taken this way only when no object is placed twice (then the order in which
     hierarchies end, which decides the one-by-one path's first-wins, does not matter)
-    and the parents are few: one XPath pair per CHILDREN element, found by lxml's
-    C iteration (an XPath descendant step merges its results with a duplicate check
-    that grows with the square of the batch).
+    and the parents are few (one XPath pair per CHILDREN element).
     """
-    tops = container[:count]
-    if any(top.tag != _HIERARCHY for top in tops):
-        return False
+    if int(_ELEMENT_COUNT(container)) - in_progress != count:
+        return False  # something besides hierarchies
     objects = _texts(_TOP_OBJECTS[in_progress](container))
     if objects is None or len(objects) != count or _TOP_COUNT(container) != 2 * (count + in_progress):
         return False  # a hierarchy without an object, or with two: the one-by-one path
-    hierarchies = sum(1 for top in tops for _ in top.iter(_HIERARCHY))
-    groups = [group for top in tops for group in top.iter(_R + "CHILDREN")]
-    del tops
+    # The descendant steps merge their results with a duplicate check; a batch holds a
+    # few hundred hierarchies (or one big tree, a single context node), so that is cheap.
+    hierarchies = int(_TREE_SIZE[in_progress](container))
+    groups = _GROUPS[in_progress](container)
     if len(groups) > max(8, hierarchies // 8):
         return False
     pairs: list[tuple[str, str]] = []
