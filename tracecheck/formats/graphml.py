@@ -20,8 +20,9 @@ without ``attr.name`` (drawing data of graph editors) are skipped. Lists, which 
 lacks, are written as JSON text in a string key whose ``<desc>`` is ``tracecheck:json``
 and read back as lists. The edge direction is always source -> target.
 
-The reader streams the document (iterparse, each node and edge cleared once read), so
-memory follows the size of the model, not of the XML tree.
+The reader streams the document (:func:`xmlsafe.batches`: the nodes and edges finished
+in each parsed chunk are read together by XPath columns, then deleted), so memory
+follows the size of the model, not of the XML tree.
 """
 
 from __future__ import annotations
@@ -30,8 +31,11 @@ import io
 import json
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import repeat
+from operator import attrgetter
 from typing import Any
 
+import numpy as np
 from lxml import etree
 
 from tracecheck.collection import collection_paused
@@ -107,6 +111,7 @@ class _Reader:
         self.meta_done = False
         self.skipped: set[str] = set()  # keys without attr.name
         self.defaults: dict[str, list[tuple[str, Any]]] = {"node": [], "edge": [], "graph": []}
+        self.plain: tuple[int, dict[str, str]] | None = None  # plain_names, for a number of keys
 
     def fail(self, line: int | None, message: str) -> InputError:
         where = f"{self.origin}:{line}" if line else self.origin
@@ -137,6 +142,12 @@ class _Reader:
                     self.defaults[domain].append((name, value))
         self.keys[key_id] = key
 
+    def plain_names(self) -> dict[str, str]:
+        """Key id -> attr.name of the string keys (whose data is taken as written)."""
+        if self.plain is None or self.plain[0] != len(self.keys):
+            self.plain = (len(self.keys), {key_id: key.name for key_id, key in self.keys.items() if key.plain})
+        return self.plain[1]
+
     def value(self, key: _Key, text: str, line: int | None, what: str) -> Any:
         try:
             value = key.convert(text if key.convert is str else text.strip())
@@ -144,14 +155,16 @@ class _Reader:
         except ValueError as error:
             raise self.fail(line, f"data for {key.name!r} of {what}: {error}.") from None
 
-    def data(self, elem: Any, what: Any, domain: str) -> dict[str, Any]:
+    def data(self, elem: Any, what: Any, domain: str, children: Any = None) -> dict[str, Any]:
         """The typed data of a node, edge or graph, with key defaults filled in.
+
+        ``children`` are the ``<data>`` elements to read (by default all of ``elem``'s).
 
         ``what`` is a callable giving the owner's description, built only for a message.
         """
         values: dict[str, Any] = {}
         keys = self.keys
-        for child in elem.iterchildren(_DATA):
+        for child in elem.iterchildren(_DATA) if children is None else children:
             key_id = child.get("key")
             key = keys.get(key_id)
             if key is None:
@@ -235,7 +248,33 @@ def _text(value: Any) -> str | None:
     return None if value is None else str(value)
 
 
-_TAGS = (_KEY, _GRAPH, _NODE, _EDGE, _HYPEREDGE)
+_RECORD_TAGS = (_NODE, _EDGE, _HYPEREDGE)
+_NS = {"g": NAMESPACE}
+
+
+def _xpath(path: str) -> Any:
+    return etree.XPath(path, namespaces=_NS, smart_strings=False)
+
+
+class _Queries:
+    """Columns of a batch of one record tag, each one compiled XPath evaluated in C.
+
+    The batch is the graph's children with that tag, all but the last of them when
+    ``but_last`` (the graph's last child, which the parser may still be inside). Of
+    every ``<data>`` the first child node is taken: when it is text, that is what
+    ``.text`` gives, which is how the one-by-one path reads a value.
+    """
+
+    def __init__(self, record: str, but_last: bool) -> None:
+        r = f"g:{record}[position() < last()]" if but_last else f"g:{record}"
+        self.records, self.count = _xpath(r), _xpath(f"count(g:{record})")
+        self.ids, self.sources, self.targets = _xpath(f"{r}/@id"), _xpath(f"{r}/@source"), _xpath(f"{r}/@target")
+        self.keys, self.values = _xpath(f"{r}/g:data/@key"), _xpath(f"{r}/g:data/node()[1]")
+
+
+_QUERIES = {(tag, but_last): _Queries(tag[len(_N):], but_last) for tag in (_NODE, _EDGE) for but_last in (False, True)}
+_ELEMENTS, _OTHERS = _xpath("count(*)"), _xpath("count(g:data) + count(g:desc)")
+_LINE = attrgetter("sourceline")
 
 
 def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) -> Model:
@@ -253,60 +292,162 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
 
 def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
     reader = _Reader(origin, options or {})
-    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
-                               root=_N + "graphml", format_name="GraphML")
-    # The hot loop: most records are edges with string data only (the relation). Those
-    # are read inline, with the list appends and look-ups bound once; anything else
-    # (typed or undeclared keys, key defaults, a missing end or relation) goes through
-    # Reader.edge, which also words the errors.
-    columns = reader.columns
-    keys_get, relation_key, edge_defaults = reader.keys.get, reader.relation_key, reader.defaults["edge"]
-    add_source, add_target, add_relation = (columns.link_sources.append, columns.link_targets.append,
-                                            columns.link_relations.append)
-    add_id, add_attributes, add_line = columns.link_ids.append, columns.link_attrs.append, columns.link_lines.append
+    keys_done = False
+    for element, count, last, pending in xmlsafe.batches(data, origin, containers=(_GRAPH,),
+                                                         root=_N + "graphml", format_name="GraphML"):
+        if not keys_done:  # the keys come before the first graph (GraphML primer, section 2.4)
+            document = element if count is None else element.getroottree().getroot()
+            for key in document.iterchildren(_KEY):
+                reader.add_key(key)
+            keys_done = True
+        if count is not None:
+            _records(reader, element, count, last, None if pending is None else pending.tag)
+    return Model.from_columns(reader.columns, meta=reader.meta, origin=origin, format="graphml")
+
+
+def _records(reader: _Reader, graph: Any, count: int, last: bool, in_progress: str | None) -> None:
+    """Read the first ``count`` children of a graph: by columns when it can, else one by one.
+
+    ``in_progress`` is the tag of the child after them, which the parser may still be
+    inside (the counts below leave it out).
+    """
+    top = graph.getparent() is not None and graph.getparent().tag == _N + "graphml"
+    nodes, edges = _QUERIES[_NODE, in_progress == _NODE], _QUERIES[_EDGE, in_progress == _EDGE]
+    n_nodes = int(nodes.count(graph)) - (in_progress == _NODE)
+    n_edges = int(edges.count(graph)) - (in_progress == _EDGE)
+    if top and not reader.meta_done:
+        # The top graph's own <data> before its first record: the model's meta. They
+        # may come over several batches; the pending child is read with the next one.
+        children = [kid for kid in graph[:count] if kid.tag == _DATA]
+        reader.meta.update(reader.data(graph, lambda: "the graph", "graph", children))
+        reader.meta_done = bool(last or n_nodes or n_edges or in_progress in (_NODE, _EDGE))
+    # By columns only when every element child is a node, an edge, or graph-level
+    # <data>/<desc> (which the one-by-one path passes over as well).
+    elements = int(_ELEMENTS(graph)) - (in_progress is not None)
+    others = int(_OTHERS(graph)) - (in_progress in (_DATA, _DESC))
+    if top and elements == n_nodes + n_edges + others:
+        node_columns = _node_columns(reader, graph, nodes, n_nodes) if n_nodes else ()
+        edge_columns = _edge_columns(reader, graph, edges, n_edges) if n_edges else ()
+        if node_columns is not None and edge_columns is not None:
+            _extend(reader.columns, node_columns, edge_columns)
+            return
+    # One by one, in the order their ends occur (a nested graph's records before the
+    # node holding it), with the same code that words every error.
     node, edge = reader.node, reader.edge
-    for _event, elem in events:
-        tag = elem.tag
-        if tag == _EDGE:
-            get = elem.get
-            source, target = get("source"), get("target")
-            fast = source and target and reader.meta_done and not edge_defaults
-            if fast:
-                values: dict[str, Any] = {}
-                for child in elem.iterchildren(_DATA):
-                    key = keys_get(child.get("key"))
-                    if key is None or not key.plain:
-                        fast = False
-                        break
-                    values[key.name] = child.text or ""
-                relation = fast and values.pop(relation_key, None)
-            if fast and relation:
-                add_source(source)
-                add_target(target)
-                add_relation(relation)
-                add_id(get("id"))
-                add_attributes(values)
-                add_line(elem.sourceline)
-            else:
+    for kid in graph[:count]:
+        if not isinstance(kid.tag, str):
+            continue
+        for _event, elem in etree.iterwalk(kid, events=("end",), tag=_RECORD_TAGS):
+            tag = elem.tag
+            if tag == _NODE:
+                node(elem)
+            elif tag == _EDGE:
                 edge(elem)
-        elif tag == _NODE:
-            node(elem)
-        elif tag == _KEY:
-            reader.add_key(elem)
-            continue
-        elif tag == _GRAPH:
-            if not reader.meta_done:
-                reader.graph_meta(elem)
-            continue
-        else:
-            raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
-        # xmlsafe.release, inline: free the record and the siblings read before it
-        elem.clear(keep_tail=False)
-        parent = elem.getparent()
-        if parent is not None:
-            while elem.getprevious() is not None:
-                del parent[0]
-    return Model.from_columns(columns, meta=reader.meta, origin=origin, format="graphml")
+            else:
+                raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
+
+
+def _extend(columns: xmlsafe.RecordColumns, nodes: tuple, edges: tuple) -> None:
+    if nodes:
+        ids, fields, attributes, lines = nodes
+        columns.element_ids.extend(ids)
+        for column, values in zip((columns.element_kinds, columns.element_names, columns.element_texts,
+                                   columns.element_parents), fields, strict=True):
+            column.extend(values)
+        columns.element_attrs.extend_flat(*attributes)
+        columns.element_lines.extend(lines)
+    if edges:
+        sources, targets, ids, fields, attributes, lines = edges
+        columns.link_sources.extend(sources)
+        columns.link_targets.extend(targets)
+        columns.link_relations.extend(fields[0])
+        columns.link_ids.extend(ids)
+        columns.link_attrs.extend_flat(*attributes)
+        columns.link_lines.extend(lines)
+
+
+def _fields(reader: _Reader, graph: Any, queries: _Queries, size: int, names: tuple[str, ...]) -> tuple | None:
+    """The ``<data>`` of a batch of ``size`` records: one list per field in ``names``
+    (``None`` where a record has none), and the rest as flat attributes.
+
+    ``None`` unless every ``<data>`` belongs to a declared string key and holds text,
+    no record has a field twice, and the records' domain has no key defaults: the
+    one-by-one path handles the rest (and says what is wrong).
+    """
+    records = queries.records(graph)
+    counts = np.fromiter(map(len, records), dtype=np.int64, count=size)
+    lines = list(map(_LINE, records))
+    del records  # see xmlsafe.batches: the records are deleted next
+    total = int(counts.sum())
+    keys = queries.keys(graph)
+    if len(keys) != total:  # a child that is not a <data> with a key
+        return None
+    values = queries.values(graph) if total else []
+    if len(values) != total or (total and set(map(type, values)) != {str}):
+        return None
+    plain = reader.plain_names()
+    try:
+        key_names = [plain[key] for key in keys]
+    except KeyError:
+        return None
+    code_of = {name: code for code, name in enumerate(names)}
+    codes = np.fromiter(map(code_of.get, key_names, repeat(len(names))), dtype=np.int64, count=total)
+    owner = np.repeat(np.arange(size), counts)
+    value_array = np.array(values, dtype=object) if total else np.empty(0, dtype=object)
+    columns = []
+    for code in range(len(names)):
+        at = np.flatnonzero(codes == code)
+        owners = owner[at]
+        if len(owners) > 1 and not (np.diff(owners) > 0).all():
+            return None  # a field given twice: the one-by-one path keeps the last
+        column = np.full(size, None, dtype=object)
+        column[owners] = value_array[at]
+        columns.append(column.tolist())
+    rest = np.flatnonzero(codes == len(names))
+    rest_counts = np.bincount(owner[rest], minlength=size).tolist()
+    attributes = (rest_counts, [key_names[i] for i in rest.tolist()], value_array[rest].tolist())
+    return columns, attributes, lines
+
+
+def _node_columns(reader: _Reader, graph: Any, queries: _Queries, size: int) -> tuple | None:
+    ids = queries.ids(graph)
+    if len(ids) != size or "" in ids or reader.defaults["node"]:
+        return None
+    found = _fields(reader, graph, queries, size, reader.names)
+    if found is None:
+        return None
+    (kinds, labels, texts, parents), attributes, lines = found
+    if None in kinds or "" in kinds:
+        default = reader.options["default_kind"]
+        if not default:
+            return None  # the one-by-one path words the error
+        kinds = [kind or default for kind in kinds]
+    if "" in parents:
+        parents = [parent or None for parent in parents]
+    return ids, (kinds, labels, texts, parents), attributes, lines
+
+
+def _edge_columns(reader: _Reader, graph: Any, queries: _Queries, size: int) -> tuple | None:
+    sources, targets = queries.sources(graph), queries.targets(graph)
+    if len(sources) != size or len(targets) != size or "" in sources or "" in targets:
+        return None
+    if reader.defaults["edge"]:
+        return None
+    ids = queries.ids(graph)
+    if len(ids) != size:
+        if ids:
+            return None  # some edges have an id: which ones, the one-by-one path knows
+        ids = [None] * size
+    found = _fields(reader, graph, queries, size, (reader.relation_key,))
+    if found is None:
+        return None
+    (relations,), attributes, lines = found
+    if None in relations or "" in relations:
+        default = reader.options["default_relation"]
+        if not default:
+            return None  # the one-by-one path words the error
+        relations = [relation or default for relation in relations]
+    return sources, targets, ids, (relations,), attributes, lines
 
 
 # --- writing ---------------------------------------------------------------------------

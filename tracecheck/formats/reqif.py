@@ -48,6 +48,8 @@ import json
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import repeat
+from operator import attrgetter
 from typing import Any
 
 from lxml import etree
@@ -412,11 +414,6 @@ def _walk(node: Any, parts: list[str]) -> None:
         parts.append(child.tail or "")
 
 
-_TAGS = tuple(_R + t for t in (
-    "DATATYPE-DEFINITION-ENUMERATION", "SPEC-OBJECT-TYPE", "SPEC-RELATION-TYPE",
-    "SPECIFICATION-TYPE", "RELATION-GROUP-TYPE", "SPEC-OBJECT", "SPEC-RELATION",
-    "SPEC-HIERARCHY", "SPECIFICATION", "TITLE", "REQ-IF-TOOL-EXTENSION",
-))
 _SPEC_OBJECT, _SPEC_RELATION, _HIERARCHY = _R + "SPEC-OBJECT", _R + "SPEC-RELATION", _R + "SPEC-HIERARCHY"
 
 
@@ -434,50 +431,298 @@ def parse(data: bytes, origin: str, options: Mapping[str, Any] | None = None) ->
         return _parse(data, origin, options)
 
 
+_CONTAINERS = (_R + "SPEC-OBJECTS", _R + "SPEC-RELATIONS", _R + "CHILDREN")
+_DECLARATIONS = (_R + "DATATYPE-DEFINITION-ENUMERATION", _R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE",
+                 _R + "TITLE")
+_NS = {"r": NAMESPACE, "h": XHTML}
+
+
+def _xpath(path: str) -> Any:
+    return etree.XPath(path, namespaces=_NS, smart_strings=False)
+
+
+class _RelationQueries:
+    """Columns of a batch of SPEC-RELATIONs, each one compiled XPath evaluated in C.
+
+    The batch is the container's SPEC-RELATION children, all but the last when
+    ``but_last`` (the parser may still be inside it). Each reference is the first
+    child node of the first reference element of the first SOURCE, TARGET or TYPE,
+    taken when it is text (which is when ``.text`` finds it); one count of the
+    elements two levels down says whether there was nothing else (six a relation: no
+    second SOURCE, no VALUES), otherwise the one-by-one path reads the batch.
+    """
+
+    def __init__(self, but_last: bool) -> None:
+        r = "r:SPEC-RELATION[position() < last()]" if but_last else "r:SPEC-RELATION"
+        # Child steps only: libxml2 merges the results of a descendant step per context
+        # node with a duplicate check, which grows with the square of the batch.
+        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-RELATION)")
+        self.inside = _xpath(f"count({r}/*) + count({r}/*/*)")
+        self.refs = [_xpath(f"{r}/r:{outer}[1]/r:{inner}[1]/node()[1]")
+                     for outer, inner in (("SOURCE", "SPEC-OBJECT-REF"), ("TARGET", "SPEC-OBJECT-REF"),
+                                          ("TYPE", "SPEC-RELATION-TYPE-REF"))]
+
+
+_RELATION_QUERIES = {but_last: _RelationQueries(but_last) for but_last in (False, True)}
+
+
+class _ObjectQueries:
+    """Columns of a batch of SPEC-OBJECTs whose values are strings and XHTML, in C.
+
+    As :class:`_RelationQueries`: lists taken with ``[1]`` steps have at most one entry
+    per object or value, so a list as long as the batch has exactly one; then one
+    count of the elements inside the objects (down to the values' references and
+    ``<div>``) says whether there was nothing else (each object: VALUES, TYPE and its
+    reference; each value: itself, DEFINITION and its reference, and for XHTML a
+    THE-VALUE holding one ``<div>``). An XHTML value is
+    read this way only when that ``<div>`` holds one text node, which is what
+    ``flatten_xhtml`` returns verbatim.
+    """
+
+    def __init__(self, but_last: bool) -> None:
+        r = "r:SPEC-OBJECT[position() < last()]" if but_last else "r:SPEC-OBJECT"
+        v = f"{r}/r:VALUES[1]"
+        s, x = f"{v}/r:ATTRIBUTE-VALUE-STRING", f"{v}/r:ATTRIBUTE-VALUE-XHTML"
+        div = f"{x}/r:THE-VALUE[1]/h:div[1]"
+        self.records, self.count = _xpath(r), _xpath("count(r:SPEC-OBJECT)")
+        self.inside = _xpath(f"count({r}/*) + count({r}/*/*) + count({r}/r:VALUES/*/*) + count({r}/r:VALUES/*/*/*)")
+        self.idents, self.long_names = _xpath(f"{r}/@IDENTIFIER"), _xpath(f"{r}/@LONG-NAME")
+        self.types = _xpath(f"{r}/r:TYPE[1]/r:SPEC-OBJECT-TYPE-REF[1]/node()[1]")
+        self.values = _xpath(v)
+        self.definitions = _xpath(f"{v}/*/r:DEFINITION[1]/*[1]/node()[1]")
+        self.string_definitions = _xpath(f"{s}/r:DEFINITION[1]/r:ATTRIBUTE-DEFINITION-STRING-REF[1]/node()[1]")
+        self.xhtml_definitions = _xpath(f"{x}/r:DEFINITION[1]/r:ATTRIBUTE-DEFINITION-XHTML-REF[1]/node()[1]")
+        self.strings, self.texts = _xpath(f"{s}/@THE-VALUE"), _xpath(f"{div}/text()[1]")
+        self.div_nodes = _xpath(f"count({div}/node())")
+
+
+_OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
+
+
+_TOP_OBJECTS = {but_last: _xpath(f"{r}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+                for but_last, r in ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))}
+_TOP_COUNT = _xpath("count(r:SPEC-HIERARCHY) + count(r:SPEC-HIERARCHY/r:OBJECT)")
+_GROUP_PARENT = _xpath("../r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+_TREES = ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))
+_TREE_SIZE = {but_last: _xpath(f"count({r}/descendant-or-self::r:SPEC-HIERARCHY)") for but_last, r in _TREES}
+_GROUPS = {but_last: _xpath(f"{r}/descendant::r:CHILDREN") for but_last, r in _TREES}
+_ELEMENT_COUNT = _xpath("count(*)")
+_GROUP_MEMBERS = _xpath("r:SPEC-HIERARCHY/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
+
+
+def _texts(values: list[Any]) -> list[str] | None:
+    """References as stripped text, or ``None`` if one is not text or is blank."""
+    if values and set(map(type, values)) != {str}:
+        return None
+    stripped = list(map(str.strip, values))
+    return None if "" in stripped else stripped
+
+
+def _hierarchy_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Parents from a batch of hierarchy trees by columns; ``False`` if it cannot vouch.
+
+    Taken this way only when no object is placed twice (then the order in which
+    hierarchies end, which decides the one-by-one path's first-wins, does not matter)
+    and the parents are few (one XPath pair per CHILDREN element).
+    """
+    if int(_ELEMENT_COUNT(container)) - in_progress != count:
+        return False  # something besides hierarchies
+    objects = _texts(_TOP_OBJECTS[in_progress](container))
+    if objects is None or len(objects) != count or _TOP_COUNT(container) != 2 * (count + in_progress):
+        return False  # a hierarchy without an object, or with two: the one-by-one path
+    # The descendant steps merge their results with a duplicate check; a batch holds a
+    # few hundred hierarchies (or one big tree, a single context node), so that is cheap.
+    hierarchies = int(_TREE_SIZE[in_progress](container))
+    groups = _GROUPS[in_progress](container)
+    if len(groups) > max(8, hierarchies // 8):
+        return False
+    pairs: list[tuple[str, str]] = []
+    for group in groups:
+        parent, members = _texts(_GROUP_PARENT(group)), _texts(_GROUP_MEMBERS(group))
+        if parent is None or len(parent) != 1 or members is None:
+            return False
+        if _TOP_COUNT(group) != 2 * len(members):
+            return False
+        pairs.extend(zip(members, repeat(parent[0])))
+    del groups
+    objects.extend(child for child, _parent in pairs)
+    parent_of = reader.parent_of
+    placed = set(objects)
+    if len(objects) != hierarchies or len(placed) != hierarchies or not parent_of.keys().isdisjoint(placed):
+        return False  # a hierarchy outside CHILDREN, or an object placed twice
+    parent_of.update(pairs)
+    return True
+
+
+def _object_queries(but_last: bool) -> _ObjectQueries:
+    if but_last not in _OBJECT_QUERIES:
+        _OBJECT_QUERIES[but_last] = _ObjectQueries(but_last)
+    return _OBJECT_QUERIES[but_last]
+
+
+def _object_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Read a batch of SPEC-OBJECTs by columns; ``False`` if it cannot vouch for them.
+
+    Only objects whose values are strings and single-``<div>`` XHTML of definitions
+    that are not JSON-marked, of types without default values; anything else (and
+    every error) goes through the one-by-one path.
+    """
+    queries = _object_queries(in_progress)
+    size = int(queries.count(container)) - in_progress
+    idents = queries.idents(container)
+    if size != count or len(idents) != size or "" in idents:
+        return False
+    types = queries.types(container)
+    if len(types) != size or (size and set(map(type, types)) != {str}):
+        return False
+    types = list(map(str.strip, types))
+    known = reader.types
+    if any(ref not in known or known[ref][1] for ref in set(types)):
+        return False
+    values = queries.values(container)
+    if len(values) != size:
+        return False  # some objects without VALUES: the one-by-one path
+    counts = list(map(len, values))
+    del values
+    items = sum(counts)
+    refs = queries.definitions(container)
+    if len(refs) != items or (items and set(map(type, refs)) != {str}):
+        return False
+    refs = list(map(str.strip, refs))
+    definitions = reader.definitions
+    used = set(refs)
+    if any(ref not in definitions or definitions[ref].as_json or definitions[ref].kind not in ("STRING", "XHTML")
+           for ref in used):
+        return False  # an unknown definition (the one-by-one path words it), or another kind of value
+    kinds = [definitions[ref].kind for ref in refs]
+    string_refs = [ref for ref, kind in zip(refs, kinds, strict=True) if kind == "STRING"]
+    xhtml_refs = [ref for ref, kind in zip(refs, kinds, strict=True) if kind == "XHTML"]
+    strings, texts = queries.strings(container), queries.texts(container)
+    if (len(strings) != len(string_refs) or len(texts) != len(xhtml_refs)
+            or list(map(str.strip, queries.string_definitions(container))) != string_refs
+            or list(map(str.strip, queries.xhtml_definitions(container))) != xhtml_refs
+            or queries.div_nodes(container) != len(texts)
+            or queries.inside(container) != 3 * size + 3 * items + 2 * len(texts)):
+        return False  # a value of another shape: the one-by-one path
+    strings_in, texts_in = iter(strings), iter(texts)
+    flat = [next(strings_in) if kind == "STRING" else next(texts_in) for kind in kinds]
+    names = [definitions[ref].name for ref in refs]
+    long_names = queries.long_names(container) if reader.opts["name"] == "LONG-NAME" else []
+    if len(long_names) != size:
+        if long_names:
+            return False  # some objects have a LONG-NAME: which ones, the one-by-one path knows
+        long_names = [None] * size
+    records = queries.records(container)
+    lines = list(map(_LINE, records))
+    del records  # see xmlsafe.batches: the records are deleted next
+    opts = reader.opts
+    id_key, text_key, parent_key = opts["id_attribute"], opts["text"], opts["parent_attribute"]
+    name_key = None if opts["name"] == "LONG-NAME" else opts["name"]
+    start, out, ident_to_id = 0, reader.records, reader.ident_to_id
+    for ident, type_ref, long_name, size_, line in zip(idents, types, long_names, counts, lines, strict=True):
+        end = start + size_
+        attributes = dict(zip(names[start:end], flat[start:end], strict=True))
+        start = end
+        element_id = attributes.pop(id_key, None) or ident
+        if element_id != ident:
+            ident_to_id[ident] = element_id
+        text = attributes.pop(text_key, None)
+        name = long_name if name_key is None else attributes.pop(name_key, None)
+        parent = attributes.pop(parent_key, None)
+        out.append((ident, element_id, type_ref, name, text, parent, attributes, line))
+    return True
+_LINE = attrgetter("sourceline")
+
+
 def _parse(data: bytes, origin: str, options: Mapping[str, Any] | None) -> Model:
     reader = _Reader(origin, options or {})
-    events = xmlsafe.iterparse(data, origin, events=("end",), tag=_TAGS,
-                               root=_R + "REQ-IF", format_name="ReqIF 1.2")
-    # Relations, then objects, are most records: test for them first with bound methods.
-    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
-    for _event, elem in events:
-        tag = elem.tag
-        if tag == _SPEC_RELATION:
-            spec_relation(elem)
-        elif tag == _SPEC_OBJECT:
-            spec_object(elem)
-        elif tag == _HIERARCHY:
-            hierarchy_end(elem)
+    declared = False
+    for element, count, _last, pending in xmlsafe.batches(data, origin, containers=_CONTAINERS,
+                                                          root=_R + "REQ-IF", format_name="ReqIF 1.2"):
+        if not declared:  # types and enumerations come before the objects (ReqIF 1.2, REQ-IF-CONTENT)
+            _declarations(reader, element if count is None else element.getroottree().getroot())
+            declared = True
+        if count is None:  # the whole document has been read: what follows the containers
+            for extension in element.iter(_R + "REQ-IF-TOOL-EXTENSION"):
+                reader.tool_extension(extension)
+        elif element.tag == _R + "SPEC-RELATIONS":
+            in_progress = pending is not None and pending.tag == _SPEC_RELATION
+            if not _relation_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
+        elif element.tag == _R + "SPEC-OBJECTS":
+            in_progress = pending is not None and pending.tag == _SPEC_OBJECT
+            if not _object_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
         else:
-            _dispatch(reader, elem)
-            continue
-        # xmlsafe.release, inline: free the record and the siblings read before it
-        elem.clear(keep_tail=False)
-        parent = elem.getparent()
-        if parent is not None:
-            while elem.getprevious() is not None:
-                del parent[0]
+            in_progress = pending is not None and pending.tag == _HIERARCHY
+            if not _hierarchy_columns(reader, element, count, in_progress):
+                _one_by_one(reader, element, count)
     return reader.model()
+
+
+def _declarations(reader: _Reader, document: Any) -> None:
+    for elem in document.iter(_DECLARATIONS):
+        _dispatch(reader, elem)
+
+
+def _one_by_one(reader: _Reader, container: Any, count: int) -> None:
+    """Records of a batch one at a time, in the order their ends occur."""
+    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
+    for kid in container[:count]:
+        if not isinstance(kid.tag, str):
+            continue
+        for _event, elem in etree.iterwalk(kid, events=("end",), tag=(_SPEC_RELATION, _SPEC_OBJECT, _HIERARCHY)):
+            tag = elem.tag
+            if tag == _SPEC_RELATION:
+                spec_relation(elem)
+            elif tag == _SPEC_OBJECT:
+                spec_object(elem)
+            else:
+                hierarchy_end(elem)
+
+
+def _relation_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:
+    """Read a batch of SPEC-RELATIONs that carry no values by columns; ``False`` if it cannot.
+
+    ``in_progress``: the container's child after the batch is a SPEC-RELATION the
+    parser may still be inside (the queries leave it out).
+    """
+    queries = _RELATION_QUERIES[in_progress]
+    size = int(queries.count(container)) - in_progress
+    if size != count or queries.inside(container) != 6 * size:
+        return False  # other children, values, or a reference missing or repeated: the one-by-one path
+    columns = []
+    for texts in queries.refs:
+        column = texts(container)
+        if len(column) != size or (size and set(map(type, column)) != {str}):
+            return False  # a missing reference: the one-by-one path says which
+        column = list(map(str.strip, column))
+        if "" in column:
+            return False
+        columns.append(column)
+    sources, targets, types = columns
+    known = reader.types
+    if any(ref not in known or known[ref][1] for ref in set(types)):
+        return False  # an unknown type, or one whose defaults give the relations values
+    ident_to_id = reader.ident_to_id
+    if ident_to_id:
+        sources = list(map(ident_to_id.get, sources, sources))
+        targets = list(map(ident_to_id.get, targets, targets))
+    records = queries.records(container)
+    lines = list(map(_LINE, records))
+    del records  # see xmlsafe.batches: the records are deleted next
+    reader.links.extend(zip(sources, targets, types, [None] * size, [{} for _ in range(size)], lines, strict=True))
+    return True
 
 
 def _dispatch(reader: _Reader, elem: Any) -> None:
     tag = elem.tag
-    if tag == _SPEC_OBJECT:
-        reader.spec_object(elem)
-    elif tag == _SPEC_RELATION:
-        reader.spec_relation(elem)
-    elif tag == _HIERARCHY:
-        reader.hierarchy_end(elem)
-    elif tag == _R + "DATATYPE-DEFINITION-ENUMERATION":
+    if tag == _R + "DATATYPE-DEFINITION-ENUMERATION":
         reader.enumeration(elem)
     elif tag in (_R + "SPEC-OBJECT-TYPE", _R + "SPEC-RELATION-TYPE"):
         reader.spec_type(elem, relation=tag == _R + "SPEC-RELATION-TYPE")
     elif tag == _R + "TITLE":
         reader.title = (elem.text or "").strip() or None
-        return
-    elif tag == _R + "REQ-IF-TOOL-EXTENSION":
-        reader.tool_extension(elem)
-    xmlsafe.release(elem)
 
 
 # --- writing ---------------------------------------------------------------------------
