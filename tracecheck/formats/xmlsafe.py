@@ -21,7 +21,6 @@ resolved entities by default (see pyproject.toml).
 
 from __future__ import annotations
 
-import io
 import re
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from itertools import accumulate, repeat
@@ -34,7 +33,7 @@ from tracecheck.errors import InputError
 from tracecheck.model import Element, Link, Location
 
 __all__ = [
-    "SAFE_OPTIONS", "iterparse", "check_prolog", "describe_tag", "release", "head_text", "safe_parser",
+    "SAFE_OPTIONS", "check_prolog", "describe_tag", "head_text", "safe_parser",
     "looks_like_xml", "root_name",
     "syntax_error", "RecordColumns", "FlatMappings", "batches", "Batch", "CHUNK",
 ]
@@ -143,36 +142,6 @@ def syntax_error(error: etree.XMLSyntaxError, origin: str) -> InputError:
     return InputError(f"{where}: malformed XML: {message}.")
 
 
-def iterparse(
-    data: bytes,
-    origin: str,
-    *,
-    events: Iterable[str] = ("end",),
-    tag: Iterable[str] | str | None = None,
-    root: str | None = None,
-    format_name: str = "",
-) -> Iterator[tuple[str, Any]]:
-    """``lxml.etree.iterparse`` over ``data`` with the hardened options.
-
-    The prolog is checked first, so a refused document yields nothing at all; so is
-    the root element's tag when ``root`` is given (``format_name`` names the format in
-    the message). Callers clear what they have read with :func:`release`.
-
-    Raises
-    ------
-    InputError
-        Refused DOCTYPE, malformed XML (with line and column), or the wrong root.
-    """
-    _check_start(data, origin, root, format_name)
-    context = etree.iterparse(
-        io.BytesIO(data), events=tuple(events), tag=tag, remove_blank_text=False, **SAFE_OPTIONS
-    )
-    try:
-        yield from context
-    except etree.XMLSyntaxError as error:
-        raise syntax_error(error, origin) from None
-
-
 def _check_start(data: bytes, origin: str, root: str | None, format_name: str) -> None:
     found, line = check_prolog(data, origin)
     if root is not None and found != root:
@@ -275,15 +244,6 @@ def _drain(container: Any, last: bool) -> Iterator[Batch]:
     if count or last:
         yield Batch(container, count, last, pending)
         del container[:count]
-
-
-def release(element: Any) -> None:
-    """Free an element read by :func:`iterparse` and the siblings before it."""
-    element.clear(keep_tail=False)
-    parent = element.getparent()
-    if parent is not None:
-        while element.getprevious() is not None:
-            del parent[0]
 
 
 _COMMENT = re.compile(r"<!--.*?(?:-->|\Z)", re.DOTALL)
