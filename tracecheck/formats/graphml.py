@@ -248,7 +248,6 @@ def _text(value: Any) -> str | None:
     return None if value is None else str(value)
 
 
-_RECORD_TAGS = (_NODE, _EDGE, _HYPEREDGE)
 _NS = {"g": NAMESPACE}
 
 
@@ -333,18 +332,10 @@ def _records(reader: _Reader, graph: Any, count: int, last: bool, in_progress: s
             return
     # One by one, in the order their ends occur (a nested graph's records before the
     # node holding it), with the same code that words every error.
-    node, edge = reader.node, reader.edge
-    for kid in graph[:count]:
-        if not isinstance(kid.tag, str):
-            continue
-        for _event, elem in etree.iterwalk(kid, events=("end",), tag=_RECORD_TAGS):
-            tag = elem.tag
-            if tag == _NODE:
-                node(elem)
-            elif tag == _EDGE:
-                edge(elem)
-            else:
-                raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
+    def hyperedge(elem: Any) -> None:
+        raise reader.fail(elem.sourceline, "hyperedges are not supported; use binary edges.")
+
+    xmlsafe.walk_records(graph, count, {_NODE: reader.node, _EDGE: reader.edge, _HYPEREDGE: hyperedge})
 
 
 def _extend(columns: xmlsafe.RecordColumns, nodes: tuple, edges: tuple) -> None:

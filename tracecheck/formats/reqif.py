@@ -667,18 +667,8 @@ def _declarations(reader: _Reader, document: Any) -> None:
 
 def _one_by_one(reader: _Reader, container: Any, count: int) -> None:
     """Records of a batch one at a time, in the order their ends occur."""
-    spec_relation, spec_object, hierarchy_end = reader.spec_relation, reader.spec_object, reader.hierarchy_end
-    for kid in container[:count]:
-        if not isinstance(kid.tag, str):
-            continue
-        for _event, elem in etree.iterwalk(kid, events=("end",), tag=(_SPEC_RELATION, _SPEC_OBJECT, _HIERARCHY)):
-            tag = elem.tag
-            if tag == _SPEC_RELATION:
-                spec_relation(elem)
-            elif tag == _SPEC_OBJECT:
-                spec_object(elem)
-            else:
-                hierarchy_end(elem)
+    xmlsafe.walk_records(container, count, {_SPEC_RELATION: reader.spec_relation, _SPEC_OBJECT: reader.spec_object,
+                                            _HIERARCHY: reader.hierarchy_end})
 
 
 def _relation_columns(reader: _Reader, container: Any, count: int, in_progress: bool) -> bool:

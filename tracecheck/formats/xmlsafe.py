@@ -22,7 +22,7 @@ resolved entities by default (see pyproject.toml).
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from itertools import accumulate, repeat
 from typing import Any, NamedTuple
 
@@ -35,7 +35,7 @@ from tracecheck.model import Element, Link, Location
 __all__ = [
     "SAFE_OPTIONS", "check_prolog", "describe_tag", "head_text", "safe_parser",
     "looks_like_xml", "root_name",
-    "syntax_error", "RecordColumns", "FlatMappings", "batches", "Batch", "CHUNK",
+    "syntax_error", "RecordColumns", "FlatMappings", "batches", "Batch", "CHUNK", "walk_records",
 ]
 
 SAFE_OPTIONS: dict[str, Any] = {
@@ -173,6 +173,18 @@ class Batch(NamedTuple):
     count: int | None
     last: bool = False
     pending: Any = None
+
+
+def walk_records(container: Any, count: int, handlers: Mapping[str, Callable[[Any], Any]]) -> None:
+    """Hand each record under the first ``count`` children of ``container`` to the
+    handler of its tag, in the order the records end (a nested record before the one
+    holding it): the one-by-one path of the batch readers."""
+    tags = tuple(handlers)
+    for kid in container[:count]:
+        if not isinstance(kid.tag, str):
+            continue  # comments and processing instructions
+        for _event, elem in etree.iterwalk(kid, events=("end",), tag=tags):
+            handlers[elem.tag](elem)
 
 
 def batches(
