@@ -219,3 +219,22 @@ def test_duplicate_keys_keep_the_last_value_on_both_paths():
     assert (element.kind, dict(element.attributes)) == ("hazard", {"x": 2})
     assert thread_json.to_document(parse(data, "m.json")) == thread_json.to_document(
         thread_json._parse_slowly(data, "m.json"))
+
+
+@settings(max_examples=120, deadline=None)
+@given(items, items, st.sampled_from([None, 0, 1, 3]), st.booleans(), st.sampled_from([1, 2, 3, 7, 64, 1 << 20]),
+       st.randoms(use_true_random=False), st.sampled_from([0, 2, 64]))
+def test_lazy_lines_equal_the_item_by_item_scanner(elements, links, indent, ascii_only, chunk, rnd, eager_after):
+    # Oracle: Python's own JSON scanner run item by item, as in the test above; lines
+    # asked one at a time in random order, across the switch to computing all at once.
+    from tracecheck.formats.json_lines import LazyLines
+
+    text = json.dumps({"elements": elements, "format": "x", "links": links}, indent=indent, ensure_ascii=ascii_only)
+    expected = _exact_lines(text)
+    lazy = LazyLines.scan(text.encode("utf-8"), {"elements": len(elements), "links": len(links)}, chunk=chunk)
+    assert lazy is not None
+    lazy.EAGER_AFTER = eager_after
+    asked = [(name, i) for name in ("elements", "links") for i in range(len(expected[name]))]
+    rnd.shuffle(asked)
+    assert [lazy.line(name, i) for name, i in asked] == [expected[name][i] for name, i in asked]
+    assert {name: lazy.lines(name) for name in expected} == expected

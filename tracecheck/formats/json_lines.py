@@ -27,7 +27,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
-__all__ = ["item_lines", "CHUNK"]
+__all__ = ["item_lines", "LazyLines", "CHUNK"]
 
 CHUNK = 1 << 23
 _KEY_BEFORE = re.compile(rb'"([A-Za-z_]+)"[ \t\r\n]*:[ \t\r\n]*\Z')
@@ -46,23 +46,26 @@ def _unescaped(quotes: np.ndarray, backslashes: np.ndarray) -> np.ndarray:
 
 
 class _Scan:
-    """Running state across chunks."""
+    """Running state across chunks. With ``lines`` the scan also finds every item's
+    line; without, it keeps each chunk's newline count, for :class:`LazyLines`."""
 
-    def __init__(self) -> None:
+    def __init__(self, lines: bool = True) -> None:
         self.in_string = 0  # 1 while inside a string at the chunk boundary
         self.depth = 0
         self.newlines = 0
+        self.with_lines = lines
         self.arrays: list[int] = []  # byte offset of each top-level '['
         self.closes: list[int] = []  # byte offset of each top-level ']'
         self.items: list[np.ndarray] = []  # byte offsets of items at depth 2
         self.lines: list[np.ndarray] = []
+        self.chunk_starts: list[int] = []  # byte offset of each chunk
+        self.chunk_newlines: list[int] = []  # newlines before each chunk
 
     def chunk(self, block: np.ndarray, offset: int) -> None:
         # One comparison per byte class: several times faster than a lookup table.
         quotes = _unescaped(np.flatnonzero(block == ord('"')), np.flatnonzero(block == ord("\\")))
         folded = block | 0x20  # '[' -> '{' and ']' -> '}'; nothing else lands on those
         brackets = np.flatnonzero((folded == ord("{")) | (folded == ord("}")))
-        newlines = np.flatnonzero(block == ord("\n"))
         outside = (np.searchsorted(quotes, brackets) + self.in_string) % 2 == 0
         brackets = brackets[outside]
         self.in_string = (self.in_string + quotes.size) % 2
@@ -75,10 +78,46 @@ class _Scan:
         self.closes += (brackets[(chars == ord("]")) & (after == 1)] + offset).tolist()
         items = brackets[(chars == ord("{")) & (before == 2)]
         self.items.append(items + offset)
-        self.lines.append(self.newlines + np.searchsorted(newlines, items) + 1)
+        self.chunk_starts.append(offset)
+        self.chunk_newlines.append(self.newlines)
+        if self.with_lines:
+            newlines = np.flatnonzero(block == ord("\n"))
+            self.lines.append(self.newlines + np.searchsorted(newlines, items) + 1)
+            self.newlines += newlines.size
+        else:
+            self.newlines += int(np.count_nonzero(block == ord("\n")))
         if after.size:
             self.depth = int(after[-1])
-        self.newlines += newlines.size
+
+
+def _scan(data: bytes, counts: Mapping[str, int], chunk: int, lines: bool) -> tuple[_Scan, dict] | None:
+    """Run the scan; key -> (low, high) slice of the scan's items, or ``None``."""
+    buffer = np.frombuffer(data, dtype=np.uint8)
+    scan = _Scan(lines)
+    low = 0
+    while low < len(buffer):
+        high = min(low + chunk, len(buffer))
+        while high < len(buffer) and buffer[high - 1] == ord("\\"):
+            high += 1  # never split a run of backslashes
+        scan.chunk(buffer[low:high], low)
+        low = high
+    if scan.in_string or scan.depth != 0 or len(scan.arrays) != len(scan.closes):
+        return None
+    items = np.concatenate(scan.items) if scan.items else np.zeros(0, dtype=np.int64)
+    scan.items = [items]
+    found: dict[str, tuple[int, int]] = {}
+    for start, end in zip(scan.arrays, scan.closes, strict=True):
+        key = _KEY_BEFORE.search(data, max(0, start - 256), start)
+        name = key.group(1).decode("ascii") if key else None
+        if name is None or name in found:
+            return None
+        low, high = np.searchsorted(items, [start, end])
+        found[name] = (int(low), int(high))
+    for name, count in counts.items():
+        low, high = found.get(name, (0, 0))
+        if high - low != count:
+            return None
+    return scan, found
 
 
 def item_lines(data: bytes, counts: Mapping[str, int], chunk: int = CHUNK) -> dict[str, list[int]] | None:
@@ -99,28 +138,61 @@ def item_lines(data: bytes, counts: Mapping[str, int], chunk: int = CHUNK) -> di
     dict or None
         Key -> start lines, or ``None`` when the scan cannot vouch for its answer.
     """
-    buffer = np.frombuffer(data, dtype=np.uint8)
-    scan = _Scan()
-    low = 0
-    while low < len(buffer):
-        high = min(low + chunk, len(buffer))
-        while high < len(buffer) and buffer[high - 1] == ord("\\"):
-            high += 1  # never split a run of backslashes
-        scan.chunk(buffer[low:high], low)
-        low = high
-    if scan.in_string or scan.depth != 0 or len(scan.arrays) != len(scan.closes):
+    scanned = _scan(data, counts, chunk, lines=True)
+    if scanned is None:
         return None
-    items = np.concatenate(scan.items) if scan.items else np.zeros(0, dtype=np.int64)
+    scan, found = scanned
     lines = np.concatenate(scan.lines) if scan.lines else np.zeros(0, dtype=np.int64)
-    found: dict[str, list[int]] = {}
-    for start, end in zip(scan.arrays, scan.closes, strict=True):
-        key = _KEY_BEFORE.search(data, max(0, start - 256), start)
-        name = key.group(1).decode("ascii") if key else None
-        if name is None or name in found:
-            return None
-        low, high = np.searchsorted(items, [start, end])
-        found[name] = lines[low:high].tolist()
-    for name, count in counts.items():
-        if len(found.get(name, ())) != count:
-            return None
-    return found
+    return {name: lines[low:high].tolist() for name, (low, high) in found.items()}
+
+
+class LazyLines:
+    """Start lines of the items, each found when first asked for.
+
+    The scan keeps every item's byte offset and each chunk's newline count; a line is
+    then the newlines before its chunk plus a count inside that chunk. Most runs ask
+    for the lines of a few items (the ones with findings); after ``EAGER_AFTER``
+    questions, or when every line is wanted, all lines are computed at once as
+    :func:`item_lines` does.
+    """
+
+    EAGER_AFTER = 64
+
+    def __init__(self, data: bytes, scan: _Scan, found: Mapping[str, tuple[int, int]]) -> None:
+        self._data = data
+        self._offsets = scan.items[0]
+        self._chunk_starts = np.array(scan.chunk_starts, dtype=np.int64)
+        self._chunk_newlines = scan.chunk_newlines
+        self._found = dict(found)
+        self._asked = 0
+        self._all: np.ndarray | None = None
+
+    @classmethod
+    def scan(cls, data: bytes, counts: Mapping[str, int], chunk: int = CHUNK) -> LazyLines | None:
+        """The lazy lines of ``data``'s items, or ``None`` when the scan cannot vouch."""
+        scanned = _scan(data, counts, chunk, lines=False)
+        return None if scanned is None else cls(data, *scanned)
+
+    def line(self, name: str, index: int) -> int:
+        low, high = self._found[name]
+        if not 0 <= index < high - low:
+            raise IndexError(index)
+        if self._all is None and self._asked >= self.EAGER_AFTER:
+            self._compute_all()
+        if self._all is not None:
+            return int(self._all[low + index])
+        self._asked += 1
+        offset = int(self._offsets[low + index])
+        chunk = int(np.searchsorted(self._chunk_starts, offset, side="right")) - 1
+        start = int(self._chunk_starts[chunk])
+        return self._chunk_newlines[chunk] + self._data.count(b"\n", start, offset) + 1
+
+    def lines(self, name: str) -> list[int]:
+        if self._all is None:
+            self._compute_all()
+        low, high = self._found[name]
+        return self._all[low:high].tolist()  # type: ignore[index]
+
+    def _compute_all(self) -> None:
+        newlines = np.flatnonzero(np.frombuffer(self._data, dtype=np.uint8) == ord("\n"))
+        self._all = np.searchsorted(newlines, self._offsets) + 1

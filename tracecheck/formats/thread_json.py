@@ -518,6 +518,7 @@ class _ThreadColumns:
         self._data: bytes | None = data
         self._origin = origin
         self.lines: dict[str, list[int]] | None = None
+        self._lazy: Any = None  # json_lines.LazyLines once the bytes were scanned
         self.arrays: ModelArrays | None = None
 
     @classmethod
@@ -553,28 +554,47 @@ class _ThreadColumns:
         arrays, self.arrays = self.arrays, None
         return arrays
 
-    def _lines(self) -> dict[str, list[int]]:
-        if self.lines is None:
-            from tracecheck.formats.json_lines import item_lines
+    def _scan(self) -> None:
+        """Scan the bytes for item offsets once (lines then come one at a time); when
+        the scan cannot vouch, decode item by item for every line."""
+        from tracecheck.formats.json_lines import LazyLines
 
-            data = self._data or b""
-            if data.startswith(b"\xef\xbb\xbf"):
-                data = data[3:]
-            counts = {"elements": len(self._element_items), "links": len(self._link_items)}
-            self.lines = item_lines(data, counts)
-            if self.lines is None:  # the byte scan could not vouch: decode item by item
-                text = _decode_text(data, self._origin)
-                positions = _Positions()
-                _decode_document(text, positions)
-                self.lines = {key: _lines(text, starts) for key, starts in positions.items.items()}
-            self._data = None
+        data = self._data or b""
+        if data.startswith(b"\xef\xbb\xbf"):
+            data = data[3:]
+        counts = {"elements": len(self._element_items), "links": len(self._link_items)}
+        self._lazy = LazyLines.scan(data, counts)
+        if self._lazy is None:  # the byte scan could not vouch: decode item by item
+            text = _decode_text(data, self._origin)
+            positions = _Positions()
+            _decode_document(text, positions)
+            self.lines = {key: _lines(text, starts) for key, starts in positions.items.items()}
+        self._data = None
+
+    def _line(self, name: str, index: int) -> int:
+        if self.lines is None and self._lazy is None:
+            self._scan()
+        if self.lines is not None:
+            return self.lines[name][index]
+        return self._lazy.line(name, index)  # type: ignore[union-attr]
+
+    def _lines(self) -> dict[str, list[int]]:
+        """Every item's line (for building every object)."""
+        if self.lines is None:
+            if self._lazy is None:
+                self._scan()
+            if self.lines is None:
+                lazy = self._lazy
+                assert lazy is not None
+                self.lines = {"elements": lazy.lines("elements"), "links": lazy.lines("links")}
+                self._lazy = None
         return self.lines
 
     def element_attributes(self, index: int) -> Mapping[str, Any]:
         return self._element_items[index].get("attributes") or {}
 
     def element_location(self, index: int) -> Location:
-        return Location(self._origin, self._lines()["elements"][index])
+        return Location(self._origin, self._line("elements", index))
 
     def element_content(self, index: int) -> Element:
         """Element ``index`` for reading its fields; its location is set only when the
@@ -591,7 +611,7 @@ class _ThreadColumns:
         return self._element_items
 
     def link_location(self, index: int) -> Location:
-        return Location(self._origin, self._lines()["links"][index])
+        return Location(self._origin, self._line("links", index))
 
     def link(self, index: int) -> Link:
         x = self._link_items[index]
