@@ -46,18 +46,16 @@ def _unescaped(quotes: np.ndarray, backslashes: np.ndarray) -> np.ndarray:
 
 
 class _Scan:
-    """Running state across chunks. With ``lines`` the scan also finds every item's
-    line; without, it keeps each chunk's newline count, for :class:`LazyLines`."""
+    """Running state across chunks: item offsets, and each chunk's newline count (for
+    :class:`LazyLines`)."""
 
-    def __init__(self, lines: bool = True) -> None:
+    def __init__(self) -> None:
         self.in_string = 0  # 1 while inside a string at the chunk boundary
         self.depth = 0
         self.newlines = 0
-        self.with_lines = lines
         self.arrays: list[int] = []  # byte offset of each top-level '['
         self.closes: list[int] = []  # byte offset of each top-level ']'
         self.items: list[np.ndarray] = []  # byte offsets of items at depth 2
-        self.lines: list[np.ndarray] = []
         self.chunk_starts: list[int] = []  # byte offset of each chunk
         self.chunk_newlines: list[int] = []  # newlines before each chunk
 
@@ -80,20 +78,15 @@ class _Scan:
         self.items.append(items + offset)
         self.chunk_starts.append(offset)
         self.chunk_newlines.append(self.newlines)
-        if self.with_lines:
-            newlines = np.flatnonzero(block == ord("\n"))
-            self.lines.append(self.newlines + np.searchsorted(newlines, items) + 1)
-            self.newlines += newlines.size
-        else:
-            self.newlines += int(np.count_nonzero(block == ord("\n")))
+        self.newlines += int(np.count_nonzero(block == ord("\n")))
         if after.size:
             self.depth = int(after[-1])
 
 
-def _scan(data: bytes, counts: Mapping[str, int], chunk: int, lines: bool) -> tuple[_Scan, dict] | None:
+def _scan(data: bytes, counts: Mapping[str, int], chunk: int) -> tuple[_Scan, dict] | None:
     """Run the scan; key -> (low, high) slice of the scan's items, or ``None``."""
     buffer = np.frombuffer(data, dtype=np.uint8)
-    scan = _Scan(lines)
+    scan = _Scan()
     low = 0
     while low < len(buffer):
         high = min(low + chunk, len(buffer))
@@ -138,12 +131,8 @@ def item_lines(data: bytes, counts: Mapping[str, int], chunk: int = CHUNK) -> di
     dict or None
         Key -> start lines, or ``None`` when the scan cannot vouch for its answer.
     """
-    scanned = _scan(data, counts, chunk, lines=True)
-    if scanned is None:
-        return None
-    scan, found = scanned
-    lines = np.concatenate(scan.lines) if scan.lines else np.zeros(0, dtype=np.int64)
-    return {name: lines[low:high].tolist() for name, (low, high) in found.items()}
+    lazy = LazyLines.scan(data, counts, chunk)
+    return None if lazy is None else {name: lazy.lines(name) for name in lazy.names}
 
 
 class LazyLines:
@@ -170,8 +159,13 @@ class LazyLines:
     @classmethod
     def scan(cls, data: bytes, counts: Mapping[str, int], chunk: int = CHUNK) -> LazyLines | None:
         """The lazy lines of ``data``'s items, or ``None`` when the scan cannot vouch."""
-        scanned = _scan(data, counts, chunk, lines=False)
+        scanned = _scan(data, counts, chunk)
         return None if scanned is None else cls(data, *scanned)
+
+    @property
+    def names(self) -> list[str]:
+        """The keys of the top-level arrays found, in file order."""
+        return list(self._found)
 
     def line(self, name: str, index: int) -> int:
         low, high = self._found[name]
