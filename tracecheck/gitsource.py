@@ -95,17 +95,24 @@ def _tree_path(repo, path: str, cwd: Path) -> str:
         raise GitError(f"{path}: lies outside the repository {root}.") from None
 
 
-def read_blob(rev: str, path: str, cwd: Path) -> bytes:
-    """The bytes of ``path`` at revision ``rev``."""
-    repo = open_repo(cwd)
+def _blob(repo, rev: str, path: str, cwd: Path):
+    """The blob of ``path`` at ``rev``, ``None`` when absent; a folder is an error."""
     commit = resolve(rev, cwd)
     tree_path = _tree_path(repo, path, cwd)
     try:
         blob = repo.commit(commit).tree / tree_path
     except KeyError:
-        raise GitError(f"{path}: does not exist at git revision {rev!r}.") from None
+        return None
     if blob.type != "blob":
         raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
+    return blob
+
+
+def read_blob(rev: str, path: str, cwd: Path) -> bytes:
+    """The bytes of ``path`` at revision ``rev``."""
+    blob = _blob(open_repo(cwd), rev, path, cwd)
+    if blob is None:
+        raise GitError(f"{path}: does not exist at git revision {rev!r}.")
     return blob.data_stream.read()
 
 
@@ -120,13 +127,9 @@ def start_blob(rev: str, path: str, cwd: Path) -> Callable[[], bytes] | None:
     import git
 
     repo = open_repo(cwd)
-    commit = resolve(rev, cwd)
-    try:
-        entry = repo.commit(commit).tree / _tree_path(repo, path, cwd)
-    except KeyError:
+    entry = _blob(repo, rev, path, cwd)
+    if entry is None:
         return None
-    if entry.type != "blob":
-        raise GitError(f"{path}: is a folder at git revision {rev!r}, not a model file.")
     command = [git.Git.GIT_PYTHON_GIT_EXECUTABLE or "git", f"--git-dir={repo.git_dir}", "cat-file", "blob", entry.hexsha]
     try:
         handle = tempfile.TemporaryFile()
