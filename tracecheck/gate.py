@@ -162,7 +162,7 @@ def start_forked(path: str, head: Model, head_data: bytes, base_data: bytes,
 def start_compare(sides: FileSides, config: Config) -> Comparison:
     """Start comparing both sides of one model file; see :func:`compare_file`."""
     status = _status(sides)
-    if status == "modified" and _big(sides.base) and background.forkable():
+    if forks(sides.head, sides.base_data, sides.head_data) and background.forkable():
         return start_forked(sides.path, sides.head, sides.head_data, sides.base_data,
                             lambda side: sides.head if side == "head" else sides.base, config)
     head = None if sides.head is None else start_side(sides.head, sides.head_data, config, "model", fork=False)
