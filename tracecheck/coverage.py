@@ -79,8 +79,8 @@ def counterparts(model: Model, element_id: str, condition: Condition) -> set[str
     Links whose other end is missing, has a kind outside ``condition.kinds``, or is the
     element itself do not count.
     """
-    # Links by end from the integer codes, no Link objects. For every element at once,
-    # joined_pairs gives the same answer as arrays.
+    # Links by end from the integer codes, no Link objects. joined_pairs answers the
+    # same question for every element at once, as arrays.
     side = side_of(model)
     if condition.direction == "incoming":
         ends = (s for s, _, r in side.incoming(element_id) if r in condition.relations)
