@@ -36,14 +36,17 @@ import sys
 import tempfile
 from pathlib import Path
 
-# Peak resident memory of this process alone: VmHWM is reset by exec, unlike ru_maxrss,
-# which Linux carries over from the (large) parent process.
-PEAK = """
-def peak_kib():
-    for line in open('/proc/self/status'):
-        if line.startswith('VmHWM:'):
-            return int(line.split()[1])
-"""
+
+def _scale_module():
+    spec = importlib.util.spec_from_file_location("scale", Path(__file__).with_name("scale.py"))
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)  # type: ignore[union-attr]
+    return module
+
+
+# Peak resident memory of the measuring process alone (VmHWM, reset by exec, unlike
+# ru_maxrss): the snippet scale.py puts in front of its measuring scripts.
+PEAK = _scale_module().PEAK
 
 FLOOR = PEAK + """
 import io, sys, time
@@ -155,11 +158,6 @@ REQIF = "{http://www.omg.org/spec/ReqIF/20110401/reqif.xsd}"
 TAGS = {"graphml": f"{GRAPHML}node,{GRAPHML}edge", "reqif": f"{REQIF}SPEC-OBJECT,{REQIF}SPEC-RELATION"}
 
 
-def _scale_module():
-    spec = importlib.util.spec_from_file_location("scale", Path(__file__).with_name("scale.py"))
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)  # type: ignore[union-attr]
-    return module
 
 
 def measure(script: str, *args: str) -> tuple[float, float]:
