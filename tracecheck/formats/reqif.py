@@ -499,11 +499,10 @@ class _ObjectQueries:
 _OBJECT_QUERIES: dict[bool, _ObjectQueries] = {}
 
 
-_TOP_OBJECTS = {but_last: _xpath(f"{r}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
-                for but_last, r in ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))}
+_TREES = ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))
+_TOP_OBJECTS = {but_last: _xpath(f"{r}/r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]") for but_last, r in _TREES}
 _TOP_COUNT = _xpath("count(r:SPEC-HIERARCHY) + count(r:SPEC-HIERARCHY/r:OBJECT)")
 _GROUP_PARENT = _xpath("../r:OBJECT[1]/r:SPEC-OBJECT-REF[1]/node()[1]")
-_TREES = ((False, "r:SPEC-HIERARCHY"), (True, "r:SPEC-HIERARCHY[position() < last()]"))
 _TREE_SIZE = {but_last: _xpath(f"count({r}/descendant-or-self::r:SPEC-HIERARCHY)") for but_last, r in _TREES}
 _GROUPS = {but_last: _xpath(f"{r}/descendant::r:CHILDREN") for but_last, r in _TREES}
 _ELEMENT_COUNT = _xpath("count(*)")
