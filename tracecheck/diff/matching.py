@@ -14,7 +14,7 @@ import re
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from itertools import filterfalse, repeat
+from itertools import filterfalse, groupby, repeat
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
@@ -47,6 +47,9 @@ DEFAULT_THRESHOLD = 0.6
 # Tokens present in more than this many unmatched new elements of one kind are too
 # common ("the", "shall") to propose candidates; they still count in the score.
 _BLOCK_LIMIT = 200
+# Candidates come from an old element's rarest keys first; keys shared by more new
+# elements are added, a size class at a time, only while the pool stays within this.
+_POOL_SIZE = 32
 # Each unmatched old element keeps at most this many best candidates.
 _TOP_CANDIDATES = 8
 
@@ -251,10 +254,18 @@ def _candidates(old: dict[str, _Profile], new: dict[str, _Profile]) -> dict[str,
     for old_id, profile in old.items():
         kind = profile.element.kind
         keys = profile.content | profile.neighbourhood or {None}
+        buckets = [hits for hits in map(index.get, zip(repeat(kind), keys)) if hits and len(hits) <= _BLOCK_LIMIT]
+        buckets.sort(key=len)
+        # Rarest keys first, and a whole size class or none (so the pool does not
+        # depend on the order of keys); the smallest class always counts.
         pool: set[str] = set()
-        for key in keys:
-            hits = index.get((kind, key), ())
-            if len(hits) <= _BLOCK_LIMIT:
+        taken = 0
+        for size, group in groupby(buckets, key=len):
+            group = list(group)
+            taken += size * len(group)
+            if pool and taken > _POOL_SIZE:
+                break
+            for hits in group:
                 pool.update(hits)
         found[old_id] = pool
     return found
@@ -316,8 +327,10 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     Notes
     -----
     Ids shared by both models are matched first, whatever their content. The remaining
-    old elements are scored against new elements of the same kind that share a token
-    or a mapped neighbour (an inverted index keeps this near linear); pairs below
+    old elements are scored against new elements of the same kind that share one of
+    its rarer tokens or mapped neighbours (an inverted index; keys are taken rarest
+    first and stop adding once about ``_POOL_SIZE`` candidates are in, so the work per
+    element does not grow with the model, which keeps the whole near linear); pairs below
     ``options.threshold`` are dropped and each old element keeps its best few
     candidates; the one-to-one assignment maximises the summed gain above the
     threshold (Edmonds 1965, via networkx).
