@@ -14,8 +14,16 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from tracecheck.diff import matching
-from tracecheck.diff.matching import MatchOptions, _assign, _candidates, _Profile, match_elements, similarity
+from tracecheck.diff.matching import (
+    MatchOptions,
+    _assign,
+    _candidates,
+    _Profile,
+    match_elements,
+    similarity,
+)
 from tracecheck.model import Element, Link, Model
+from tracecheck.sides import side_of
 
 VOCABULARY = [f"w{i}" for i in range(60)]
 
@@ -98,8 +106,6 @@ def test_templated_siblings_match_as_brute_force_does():
     old_left = [e for e in old.elements if e.id not in {x.id for x in new.elements}]
     new_left = [e for e in new.elements if e.id not in {x.id for x in old.elements}]
     identity = {"SYS-1": "SYS-1"}
-    from tracecheck.sides import side_of
-
     old_profiles = matching._profiles(side_of(old), [e.id for e in old_left], identity)
     new_profiles = matching._profiles(side_of(new), [e.id for e in new_left], identity)
     rarity = matching.rarity_weights([*old_profiles.values(), *new_profiles.values()])
