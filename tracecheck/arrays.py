@@ -110,6 +110,11 @@ class ModelArrays:
                 codes[index] = self._ghost(name)
         return codes
 
+    def code_of(self, name: str) -> int | None:
+        """The code of ``name``: an element id's, a dangling end's, or ``None``."""
+        code = self.position.get(name)
+        return self._ghosts.get(name) if code is None else code
+
     def _ghost(self, name: str) -> int:
         code = self._ghosts.get(name)
         if code is None:

@@ -119,16 +119,16 @@ class Side:
         code = self.position.get(element_id)
         return [] if code is None else [self._triple(i) for i in self._by_target.links(code)]
 
-    def items(self, element_ids: list[str]) -> list[Mapping[str, Any]] | None:
-        """The decoded source items of the elements (first of each id), when the reader
-        kept them (``None`` otherwise); equal items mean equal fields up to the types
-        of attribute values. C-level ``map`` passes, no per-id Python call."""
+    def items(self, codes: list[int]) -> list[Mapping[str, Any]] | None:
+        """The decoded source items of the elements with ``codes`` (first of each id),
+        when the reader kept them (``None`` otherwise); equal items mean equal fields
+        up to the types of attribute values. C-level ``map`` passes, no per-id Python
+        call."""
         items = getattr(self.columns, "element_items", None)
         if items is None:
             return None
-        codes = map(self.position.__getitem__, element_ids)
         if self.arrays.n != len(items):
-            codes = map(self.arrays.first.tolist().__getitem__, codes)
+            codes = self.arrays.first[codes].tolist() if len(codes) else []
         return list(map(items.__getitem__, codes))
 
     def attributes(self, codes: list[int]) -> list[Mapping[str, Any]]:

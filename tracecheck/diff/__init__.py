@@ -10,10 +10,11 @@ import operator
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from itertools import chain, compress, filterfalse, repeat
+from itertools import chain, compress, repeat
 from typing import Any
 
 import msgspec
+import numpy as np
 
 from tracecheck.caution import caution
 from tracecheck.config import Config
@@ -128,8 +129,9 @@ def _same_attribute_types(olds: list[Mapping[str, Any]], news: list[Mapping[str,
         return list(chain.from_iterable(a)) == list(chain.from_iterable(b)) and types(a) == types(b)
 
 
-def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[str, str]]:
-    """Matched pairs whose fields may differ, sorted by new id.
+def _changed_pairs(old: Side, new: Side, old_codes: list[int], new_codes: list[int]) -> list[tuple[str, str]]:
+    """Matched pairs (old code, new code, pairwise) whose fields may differ, as ids
+    sorted by new id.
 
     Most matched pairs are unchanged. When the reader kept the decoded source items, a
     pair whose items are equal (one C-level dict comparison: equal kind, name, text,
@@ -137,8 +139,9 @@ def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[
     without building an element; the others go through a cheap equality on the
     compared fields before the field-by-field one.
     """
-    pairs = list(mapping.items())
-    old_items, new_items = old.items(list(mapping)), new.items(list(mapping.values()))
+    old_ids, new_ids = map(old.arrays.names.__getitem__, old_codes), map(new.arrays.names.__getitem__, new_codes)
+    pairs = list(zip(old_ids, new_ids, strict=True))
+    old_items, new_items = old.items(old_codes), new.items(new_codes)
     if old_items is not None and new_items is not None:
         equal = list(map(operator.eq, old_items, new_items))
         if _same_attribute_types(list(compress(old_items, equal)), list(compress(new_items, equal))):
@@ -153,11 +156,15 @@ def _changed_pairs(old: Side, new: Side, mapping: dict[str, str]) -> list[tuple[
 
 
 def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list]:
-    mapping = matching.mapping
-    image = set(mapping.values())
-    modified = []
+    # On the integer codes of the matching: no id is looked up again.
+    codes = matching.codes
+    matched = np.flatnonzero(codes >= 0)
+    partners = codes[matched]
     old_side, new_side = side_of(old), side_of(new)
-    for old_id, new_id in _changed_pairs(old_side, new_side, mapping):
+    taken = np.zeros(len(new_side), dtype=bool)
+    taken[partners] = True
+    modified = []
+    for old_id, new_id in _changed_pairs(old_side, new_side, matched.tolist(), partners.tolist()):
         changes = field_changes(old_side.element(old_id), new_side.element(new_id))
         if changes:
             entry: dict[str, Any] = {"id": new_id, "changes": changes}
@@ -165,10 +172,10 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
                 entry["old_id"] = old_id
             modified.append(entry)
     return {
-        "added": sorted(filterfalse(image.__contains__, new_side.ids)),
-        "removed": sorted(filterfalse(mapping.__contains__, old_side.ids)),
+        "added": sorted(compress(new_side.ids, (~taken).tolist())),
+        "removed": sorted(compress(old_side.ids, (codes < 0).tolist())),
         "modified": modified,
-        "moved": moves(old, new, mapping),
+        "moved": moves(old, new, matching),
         "reidentified": [{"old": o, "new": n, "score": s} for o, n, s in matching.reidentified],
     }
 
@@ -229,7 +236,7 @@ def diff_models(
         e.get("id", e.get("new")) for c in ("modified", "moved", "reidentified") for e in elements[c]}
     old_side, new_side = side_of(old), side_of(new)
     kinds = {i: (new_side if i in new_side else old_side).kind(i) for i in changed_ids}
-    links = link_changes(old, new, matching.mapping)
+    links = link_changes(old, new, matching)
     impact = _impact(old, new, elements, matching.mapping, config)
     return DiffResult(
         old.origin,

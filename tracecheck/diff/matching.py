@@ -14,7 +14,9 @@ import re
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from itertools import filterfalse, groupby, repeat
+from itertools import compress, groupby, repeat
+
+import numpy as np
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
@@ -86,10 +88,15 @@ class Matching:
     """``mapping``: old id -> new id for every matched element (by id or by content).
 
     ``reidentified``: (old id, new id, score) for the content pairs, sorted.
+    ``codes``: the same matching on the integer codes of the two models' distinct
+    ids (:class:`tracecheck.arrays.ModelArrays`): per old code, the new code it is
+    matched to, -1 when unmatched. The diff's later steps read this rather than
+    looking each id up again (a million-entry dict look-up misses the cache).
     """
 
     mapping: dict[str, str]
     reidentified: list[tuple[str, str, float]]
+    codes: np.ndarray
 
 
 def tokens(text: str | None) -> frozenset[str]:
@@ -354,16 +361,22 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     # Read from the columns and integer codes (diff/sides.py): no element object is
     # built except for the unmatched elements that are scored.
     old_side, new_side = side_of(old), side_of(new)
-    in_new = new_side.position
-    shared = list(filter(in_new.__contains__, old_side.ids))  # C-level passes, in old order
+    old_ids, new_ids = old_side.ids, new_side.ids
+    # One look-up per old id; the rest are C-level passes over the codes.
+    codes = np.fromiter(map(new_side.position.get, old_ids, repeat(-1)), dtype=np.int64, count=len(old_ids))
+    found = codes >= 0
+    shared = list(compress(old_ids, found.tolist()))  # in old order
     mapping = dict(zip(shared, shared, strict=True))
-    old_left = list(filterfalse(mapping.__contains__, old_side.ids))
-    new_left = list(filterfalse(mapping.__contains__, new_side.ids))
+    taken = np.zeros(len(new_ids), dtype=bool)
+    taken[codes[found]] = True
+    old_left = list(compress(old_ids, (~found).tolist()))
+    new_left = list(compress(new_ids, (~taken).tolist()))
     if not old_left or not new_left:
-        return Matching(mapping, [])
-    identity = {i: i for i in mapping}
-    old_profiles = _profiles(old_side, old_left, identity)
-    new_profiles = _profiles(new_side, new_left, identity)
+        return Matching(mapping, [], codes)
+    # ``mapping`` is still the identity on the shared ids here: the neighbourhoods
+    # read it as the common id space.
+    old_profiles = _profiles(old_side, old_left, mapping)
+    new_profiles = _profiles(new_side, new_left, mapping)
     rarity = rarity_weights([*old_profiles.values(), *new_profiles.values()])
     scored = []
     for old_id, pool in sorted(_candidates(old_profiles, new_profiles).items()):
@@ -374,4 +387,6 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
         scored += [(old_id, n, s) for s, n in ranked[:_TOP_CANDIDATES] if s >= options.threshold]
     pairs = _assign(scored, options.threshold)
     mapping.update({o: n for o, n, _ in pairs})
-    return Matching(mapping, pairs)
+    for o, n, _ in pairs:
+        codes[old_side.position[o]] = new_side.position[n]
+    return Matching(mapping, pairs, codes)
