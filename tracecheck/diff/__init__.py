@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import operator
 from collections import Counter
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from itertools import chain, compress, repeat
 from typing import Any
@@ -139,18 +139,19 @@ def _changed_pairs(old: Side, new: Side, old_codes: list[int], new_codes: list[i
     without building an element; the others go through a cheap equality on the
     compared fields before the field-by-field one.
     """
-    old_ids, new_ids = map(old.arrays.names.__getitem__, old_codes), map(new.arrays.names.__getitem__, new_codes)
-    pairs = list(zip(old_ids, new_ids, strict=True))
     old_items, new_items = old.items(old_codes), new.items(new_codes)
+    kept: Iterable[int] = range(len(old_codes))  # positions of the pairs still to compare
     if old_items is not None and new_items is not None:
         equal = list(map(operator.eq, old_items, new_items))
         if _same_attribute_types(list(compress(old_items, equal)), list(compress(new_items, equal))):
-            pairs = list(compress(pairs, map(operator.not_, equal)))
+            kept = compress(kept, map(operator.not_, equal))
         else:
-            pairs = [
-                pair for pair, same, a, b in zip(pairs, equal, old_items, new_items, strict=True)
+            kept = [
+                i for i, same, a, b in zip(kept, equal, old_items, new_items, strict=True)
                 if not (same and (not (x := a.get("attributes")) or _same_types(x, b["attributes"])))
             ]
+    old_ids, new_ids = old.arrays.names, new.arrays.names
+    pairs = [(old_ids[old_codes[i]], new_ids[new_codes[i]]) for i in kept]  # ids only for these
     candidates = [(o, n) for o, n in pairs if not _same_fields(old.element(o), new.element(n))]
     return sorted(candidates, key=lambda p: p[1])
 
@@ -180,7 +181,7 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
     }
 
 
-def _impact(old: Model, new: Model, elements: dict[str, list], mapping: dict[str, str], config: Config) -> list:
+def _impact(old: Model, new: Model, elements: dict[str, list], mapping: Mapping[str, str], config: Config) -> list:
     """One entry per (impacted element, changed element), with the connecting path."""
     rules = impact_rules(config)
     # Fields whose change does not reopen a review (a review status, a test result).
