@@ -115,3 +115,20 @@ def test_templated_siblings_match_as_brute_force_does():
                         key=lambda pair: (-pair[0], pair[1]))
         scored += [(o, n, s) for s, n in ranked[: matching._TOP_CANDIDATES] if s >= options.threshold]
     assert _assign(scored, options.threshold) == result.reidentified
+
+
+def test_mapping_view_answers_as_the_plain_dict():
+    # Reference: the dict built the plain way (shared ids map to themselves, content
+    # pairs as reported), compared entry by entry with the view over the codes.
+    old, new, truth = _templated(renumbered=12, replaced=5, seed=5)
+    result = match_elements(old, new)
+    new_ids = {e.id for e in new.elements}
+    plain = {e.id: e.id for e in old.elements if e.id in new_ids} | {o: n for o, n, _ in result.reidentified}
+    view = result.mapping
+    assert dict(view) == plain and len(view) == len(plain)
+    assert {o: n for o, n, _ in result.reidentified} == truth
+    for element in old.elements:
+        assert (element.id in view) == (element.id in plain)
+        assert view.get(element.id) == plain.get(element.id)
+    assert "REQ-9999" not in view and view.get("REQ-9999", "none") == "none"
+    assert None not in view
