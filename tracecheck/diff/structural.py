@@ -159,13 +159,29 @@ def _absent(keys: np.ndarray, others: np.ndarray) -> np.ndarray:
     sorts both sides with their inverse, several times slower here). The keys are
     searched in sorted order, so each search starts where the last one ended and
     stays in cache: at 3M links 0.8-1.5 s instead of 3-6 s for keys in file order."""
-    if len(others) == 0:
-        return np.ones(len(keys), dtype=bool)
-    ordered = np.sort(others)
-    order = np.argsort(keys, kind="stable")
-    wanted = keys[order]
+    return _absent_sorted(_sorted(keys), np.sort(others))
+
+
+def _absent_both(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_absent` both ways, each side sorted once (two sorts, not four)."""
+    sorted_a, sorted_b = _sorted(a), _sorted(b)
+    return _absent_sorted(sorted_a, sorted_b[1]), _absent_sorted(sorted_b, sorted_a[1])
+
+
+def _sorted(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The order that sorts ``keys``, and the keys in that order."""
+    order = np.argsort(keys)
+    return order, keys[order]
+
+
+def _absent_sorted(keys: tuple[np.ndarray, np.ndarray], ordered: np.ndarray) -> np.ndarray:
+    """Mask, in the original order of ``keys`` (as :func:`_sorted` gives them), of the
+    keys not in the sorted array ``ordered``."""
+    order, wanted = keys
+    if len(ordered) == 0:
+        return np.ones(len(wanted), dtype=bool)
     found = np.minimum(np.searchsorted(ordered, wanted), len(ordered) - 1)
-    absent = np.empty(len(keys), dtype=bool)
+    absent = np.empty(len(wanted), dtype=bool)
     absent[order] = ordered[found] != wanted
     return absent
 
@@ -204,11 +220,12 @@ def _compare_links(old: Side, new: Side, matched: np.ndarray, renamed: Mapping[s
     new_keys = (na.src * size + na.tgt) * kinds + na.rel
     oc, nc = old.columns, new.columns
     origin: dict[Triple, Triple] = {}
-    for index in np.flatnonzero(_absent(old_keys, new_keys)).tolist():
+    lost, gained = _absent_both(old_keys, new_keys)
+    for index in np.flatnonzero(lost).tolist():
         s, t, r = oc.link_sources[index], oc.link_targets[index], oc.link_relations[index]
         key = (renamed.get(s, s), renamed.get(t, t), r)
         if key not in origin or ((s in renamed or t in renamed) and origin[key] == key):
             origin[key] = (s, t, r)
     added = sorted({(nc.link_sources[i], nc.link_targets[i], nc.link_relations[i])
-                    for i in np.flatnonzero(_absent(new_keys, old_keys)).tolist()})
+                    for i in np.flatnonzero(gained).tolist()})
     return origin.keys(), origin, added
