@@ -66,42 +66,55 @@ def peak_kib():
             return int(line.split()[1])
 """
 
-BASELINE = PEAK + """
+# User and system CPU seconds of the measuring process (and of its waited-for children,
+# the gate's forked ones) since ``SPLIT_START``. System time is mostly page faults:
+# on this machine (a virtual machine) a fault costs more the more memory the process
+# holds, so it is printed apart from the user time the code itself spends.
+SPLIT = """
+import resource
+def split_since(start):
+    now = [resource.getrusage(who) for who in (resource.RUSAGE_SELF, resource.RUSAGE_CHILDREN)]
+    return (sum(u.ru_utime for u in now) - start[0], sum(u.ru_stime for u in now) - start[1])
+def split_start():
+    return split_since((0.0, 0.0))
+"""
+
+BASELINE = PEAK + SPLIT + """
 import json, resource, sys, time
-t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
-print(time.perf_counter() - t, peak_kib(), time.process_time() - c)
+s = split_start(); t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
+print(time.perf_counter() - t, peak_kib(), time.process_time() - c, *split_since(s))
 """
 
-ORJSON = PEAK + """
+ORJSON = PEAK + SPLIT + """
 import orjson, resource, sys, time
-t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); orjson.loads(data)
-print(time.perf_counter() - t, peak_kib(), time.process_time() - c)
+s = split_start(); t, c = time.perf_counter(), time.process_time(); data = open(sys.argv[1], 'rb').read(); orjson.loads(data)
+print(time.perf_counter() - t, peak_kib(), time.process_time() - c, *split_since(s))
 """
 
-CHECK = PEAK + """
+CHECK = PEAK + SPLIT + """
 import io, json, resource, sys, time
 from tracecheck.commands import check
 from tracecheck.commands.common import Streams
-t, c = time.perf_counter(), time.process_time()
+s = split_start(); t, c = time.perf_counter(), time.process_time()
 code = check.run(sys.argv[1], fmt='json', output=sys.argv[2], streams=Streams(io.StringIO(), sys.stderr))
-elapsed, cpu = time.perf_counter() - t, time.process_time() - c
+elapsed, cpu, (user, system) = time.perf_counter() - t, time.process_time() - c, split_since(s)
 rss = peak_kib()
 t = time.perf_counter(); data = open(sys.argv[1], 'rb').read(); json.loads(data)
-print(elapsed, rss, time.perf_counter() - t, cpu)
+print(elapsed, rss, time.perf_counter() - t, cpu, user, system)
 """
 
 
-COMMAND = PEAK + """
+COMMAND = PEAK + SPLIT + """
 import io, json, resource, sys, time
 from tracecheck.commands import {module}
 from tracecheck.commands.common import Streams
-t, cpu = time.perf_counter(), time.process_time()
+s = split_start(); t, cpu = time.perf_counter(), time.process_time()
 code = {module}.run({args}, fmt='json', output=sys.argv[1], streams=Streams(io.StringIO(), io.StringIO()))
-elapsed, cpu = time.perf_counter() - t, time.process_time() - cpu
+elapsed, cpu, (user, system) = time.perf_counter() - t, time.process_time() - cpu, split_since(s)
 child = resource.getrusage(resource.RUSAGE_CHILDREN)  # the gate's forked child
 rss = peak_kib()
 t = time.perf_counter(); data = open(sys.argv[2], 'rb').read(); json.loads(data)
-print(elapsed, cpu + child.ru_utime + child.ru_stime, rss, time.perf_counter() - t)
+print(elapsed, cpu + child.ru_utime + child.ru_stime, rss, time.perf_counter() - t, user, system)
 """
 
 GIT_STAT = """
@@ -223,21 +236,22 @@ def other_commands(n: int, path: Path, tmp: Path, repeat: int, gate: bool,
         git_t, git_cpu, _, stopped = best(GIT_STAT, 1 if n >= 1_000_000 else repeat, str(path), str(second),
                                           str(GIT_LIMIT))
         baseline = "git diff --no-index --stat" + (f" (stopped at {GIT_LIMIT:.0f} s)" if stopped else "")
-        t, cpu, rss, _ = best(COMMAND.format(module="diff", args=f"{str(path)!r}, {str(second)!r}"), repeat, out,
-                              str(path))
-        rows.append((n, name, baseline, t, cpu, git_t, git_cpu, rss))
+        t, cpu, rss, _, user, system = best(COMMAND.format(module="diff", args=f"{str(path)!r}, {str(second)!r}"),
+                                            repeat, out, str(path))
+        rows.append((n, name, baseline, t, cpu, git_t, git_cpu, rss, user, system))
         second.unlink()
     if "coverage" in only:
-        t, cpu, rss, inner = best(COMMAND.format(module="coverage", args=repr(str(path))), repeat, out, str(path))
-        rows.append((n, "coverage", "json.loads, same process", t, cpu, inner, inner, rss))
+        t, cpu, rss, inner, user, system = best(COMMAND.format(module="coverage", args=repr(str(path))), repeat, out,
+                                                str(path))
+        rows.append((n, "coverage", "json.loads, same process", t, cpu, inner, inner, rss, user, system))
     if gate:
         root = tmp / f"repo-{n}"
         root.mkdir()
         build(root, n)
         model = str(root / "model" / "thread.json")
-        t, cpu, rss, inner = best(COMMAND.format(module="gate", args="['model/thread.json'], base='main'"),
-                                  repeat, out, model, cwd=root, env=ENV)
-        rows.append((n, "gate (20 commits)", "json.loads, same process", t, cpu, inner, inner, rss))
+        t, cpu, rss, inner, user, system = best(COMMAND.format(module="gate", args="['model/thread.json'], base='main'"),
+                                                repeat, out, model, cwd=root, env=ENV)
+        rows.append((n, "gate (20 commits)", "json.loads, same process", t, cpu, inner, inner, rss, user, system))
         shutil.rmtree(root)
     return rows
 
@@ -257,7 +271,7 @@ def main() -> None:
     args = parser.parse_args()
     print(f"Machine: {machine()}")
     orjson = has_orjson()
-    rows, others, cpu_rows = [], [], []
+    rows, others, cpu_rows, splits = [], [], [], []
     with tempfile.TemporaryDirectory() as tmp:
         gate_sizes = None if args.gate_sizes is None else {int(s) for s in args.gate_sizes.split(",")}
         for n in (int(s) for s in args.sizes.split(",")):
@@ -265,14 +279,19 @@ def main() -> None:
             print(f"  {n:,} elements: generating, json.loads, orjson.loads, check ...", file=sys.stderr, flush=True)
             path = Path(tmp) / f"thread-{n}.json"
             generate(n, path)
-            base_t, base_m, base_c = best(BASELINE, repeat, str(path))
-            fast_t, fast_m, fast_c = best(ORJSON, repeat, str(path)) if orjson else (float("nan"),) * 3
-            check_t, check_m, inner_t, check_c = best(CHECK, repeat, str(path), str(Path(tmp) / "out.json"))
+            base_t, base_m, base_c, base_u, base_s = best(BASELINE, repeat, str(path))
+            fast_t, fast_m, fast_c, fast_u, fast_s = best(ORJSON, repeat, str(path)) if orjson else (float("nan"),) * 5
+            check_t, check_m, inner_t, check_c, check_u, check_s = best(CHECK, repeat, str(path),
+                                                                        str(Path(tmp) / "out.json"))
             rows.append((n, path.stat().st_size / 1e6, base_t, fast_t, check_t, inner_t, base_m, fast_m, check_m))
             cpu_rows.append((n, base_c, fast_c, check_c))
+            splits += [(n, "json.loads", base_u, base_s), (n, "orjson.loads", fast_u, fast_s),
+                       (n, "check", check_u, check_s)]
             only = set(args.commands.split(","))
             gate = "gate" in only and not args.no_gate and (gate_sizes is None or n in gate_sizes)
-            others += [(*row, fast_t, base_m) for row in other_commands(n, path, Path(tmp), repeat, gate, only)]
+            for row in other_commands(n, path, Path(tmp), repeat, gate, only):
+                others.append((*row[:8], fast_t, base_m))
+                splits.append((n, row[1], *row[8:]))
             path.unlink()
     print()
     print("| elements | MB | json.loads s | orjson.loads s | check s | check / json.loads "
@@ -311,6 +330,21 @@ def main() -> None:
         vs_orjson = "-" if name.startswith("diff") else f"{t / ft:.2f}x"
         print(f"| {n:,} | {name} | {t:.2f} | {cpu:.2f} | {baseline} | {bt:.2f} | {bcpu:.2f} | {t / bt:.2f}x "
               f"| {cpu / bcpu:.2f}x | {vs_orjson} | {rss / 1024:.0f} | {rss / bm:.2f}x |")
+    print_splits(splits)
+
+
+def print_splits(splits: list[tuple]) -> None:
+    """User and system CPU seconds of each measurement, and their growth per decade."""
+    print()
+    print("User and system CPU seconds (system time is mostly page faults; see SPLIT):")
+    print()
+    print("| elements | measured | user CPU s | system CPU s | user growth per decade | system growth per decade |")
+    print("|---:|---|---:|---:|---:|---:|")
+    seen = {(n, name): (user, system) for n, name, user, system in splits}
+    for n, name, user, system in splits:
+        before = seen.get((n // 10, name)) if n % 10 == 0 else None
+        growth = ("-", "-") if before is None else (f"{user / before[0]:.1f}x", f"{system / before[1]:.1f}x")
+        print(f"| {n:,} | {name} | {user:.2f} | {system:.2f} | {growth[0]} | {growth[1]} |")
 
 
 if __name__ == "__main__":

@@ -224,3 +224,19 @@ def test_absent_mask_equals_python_set_membership(keys, others):
 
     mask = _absent(np.array(keys, dtype=np.int64), np.array(others, dtype=np.int64))
     assert mask.tolist() == [k not in set(others) for k in keys]
+
+
+def test_attributes_json_cannot_encode_take_the_key_and_type_comparison():
+    # A lone surrogate escape is valid JSON text (RFC 8259 section 8.2 allows it) and
+    # the schema accepts it, but it cannot be encoded as UTF-8: the all-at-once check
+    # of attribute types falls back to comparing keys and value types. One element is
+    # unchanged, the other's value changes type (1 -> 1.0, an export-visible change).
+    def document(value: str) -> bytes:
+        return ('{"format": "tracecheck-thread/1", "elements": ['
+                '{"id": "REQ-1", "kind": "requirement", "attributes": {"note": "\\udc80", "level": 1}},'
+                '{"id": "REQ-2", "kind": "requirement", "attributes": {"note": "\\udc80", "level": ' + value + '}}'
+                '], "links": []}').encode()
+
+    old, new = parse(document("1"), "old.json"), parse(document("1.0"), "new.json")
+    assert [entry["id"] for entry in diff_models(old, new).elements["modified"]] == ["REQ-2"]
+    _both_ways(document("1"), document("1.0"))

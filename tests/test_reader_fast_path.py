@@ -238,3 +238,25 @@ def test_lazy_lines_equal_the_item_by_item_scanner(elements, links, indent, asci
     rnd.shuffle(asked)
     assert [lazy.line(name, i) for name, i in asked] == [expected[name][i] for name, i in asked]
     assert {name: lazy.lines(name) for name in expected} == expected
+
+
+@settings(max_examples=80, deadline=None)
+@given(items, items, st.sampled_from([None, 0, 2]), st.sampled_from([1, 3, 64, 1 << 20]),
+       st.sampled_from([1, 2, 5, 17, 1 << 16]), st.randoms(use_true_random=False))
+def test_lazy_lines_with_any_checkpoint_spacing(elements, links, indent, chunk, step, rnd):
+    # Oracle as above (Python's JSON scanner item by item). Newline checkpoints every
+    # `step` bytes, chunk boundaries anywhere relative to them; every line asked one
+    # at a time (the switch to all-at-once is set out of reach), then all at once.
+    from tracecheck.formats.json_lines import LazyLines
+
+    text = json.dumps({"elements": elements, "format": "x", "links": links}, indent=indent)
+    expected = _exact_lines(text)
+    lazy = LazyLines.scan(text.encode("utf-8"), {"elements": len(elements), "links": len(links)}, chunk=chunk,
+                          step=step)
+    assert lazy is not None
+    lazy.EAGER_AFTER = 10**9
+    asked = [(name, i) for name in ("elements", "links") for i in range(len(expected[name]))]
+    rnd.shuffle(asked)
+    assert [lazy.line(name, i) for name, i in asked] == [expected[name][i] for name, i in asked]
+    assert lazy._all is None
+    assert {name: lazy.lines(name) for name in expected} == expected

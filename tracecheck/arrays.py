@@ -110,6 +110,11 @@ class ModelArrays:
                 codes[index] = self._ghost(name)
         return codes
 
+    def code_of(self, name: str) -> int | None:
+        """The code of ``name``: an element id's, a dangling end's, or ``None``."""
+        code = self.position.get(name)
+        return self._ghosts.get(name) if code is None else code
+
     def _ghost(self, name: str) -> int:
         code = self._ghosts.get(name)
         if code is None:
@@ -137,7 +142,12 @@ class ModelArrays:
         starts = np.concatenate(([0], np.flatnonzero(ordered[1:] != ordered[:-1]) + 1))
         counts = np.diff(np.append(starts, m))
         firsts = order[starts]
-        seen = np.argsort(firsts, kind="stable")
+        # First-seen order of the distinct triples: their first file indexes are
+        # distinct, so marking them in a file-length array and reading it in file order
+        # sorts them in one linear pass (an argsort of 3M costs about 0.2 s).
+        rank = np.full(m, -1, dtype=np.int64)
+        rank[firsts] = np.arange(len(firsts))
+        seen = rank[rank >= 0]
         return firsts[seen], counts[seen], order, starts[seen]
 
     @property

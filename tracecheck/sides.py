@@ -5,8 +5,8 @@ asks for the objects (:mod:`tracecheck.model`); building all of them cost more t
 half of a 100k-element diff. The diff only needs the distinct ids, the parent of each
 matched element, the fields of the few elements whose content differs, and the links
 of the few elements near a change. :class:`Side` gives exactly
-those: triples come straight from the columns, a link index per end is two stable
-``argsort`` passes over the integer codes, and an element object is built only when
+those: triples come straight from the columns, a link index per end is a counting
+sort of the integer codes, and an element object is built only when
 its fields are compared. Coverage asks the same link-by-end questions for every
 element in scope, so the view lives beside the model rather than inside diff/.
 """
@@ -31,14 +31,25 @@ class _EndIndex:
     """Link file indexes grouped by one end's code, each group in file order."""
 
     def __init__(self, codes: np.ndarray, n: int) -> None:
-        order = np.argsort(codes, kind="stable")
-        # Python lists: a slice per query is cheaper than a numpy search when the
-        # coverage report asks for every element in scope.
-        self.bounds: list[int] = np.searchsorted(codes[order], np.arange(n + 1)).tolist()
-        self.order: list[int] = order.tolist()
+        from scipy.sparse import csr_matrix  # the rules import it too
+
+        # A counting sort in C, linear where a stable argsort is not (3M links: 0.17-0.26
+        # s instead of 0.45-0.6 s): row = the end's code (ends that name no element go
+        # to row n), column = the link's file index, so each row's column indices list
+        # its links in file order whether or not scipy sorts them.
+        m = len(codes)
+        rows = np.where((codes >= 0) & (codes < n), codes, n)
+        grouped = csr_matrix((np.ones(m, dtype=np.int8), (rows, np.arange(m))), shape=(n + 1, max(m, 1)))
+        # The bounds as a Python list (a slice per question); the order stays an array
+        # and only the asked slice becomes a list: the diff asks about the elements
+        # near a change, and turning 3M indexes into Python ints cost 0.15-0.3 s per
+        # index at 1M elements. (Coverage asks about every element at once, on arrays:
+        # coverage.joined_pairs.)
+        self.bounds: list[int] = grouped.indptr[: n + 1].tolist()
+        self.order: np.ndarray = grouped.indices
 
     def links(self, code: int) -> list[int]:
-        return self.order[self.bounds[code] : self.bounds[code + 1]]
+        return self.order[self.bounds[code] : self.bounds[code + 1]].tolist()
 
 
 class Side:
@@ -111,16 +122,16 @@ class Side:
         code = self.position.get(element_id)
         return [] if code is None else [self._triple(i) for i in self._by_target.links(code)]
 
-    def items(self, element_ids: list[str]) -> list[Mapping[str, Any]] | None:
-        """The decoded source items of the elements (first of each id), when the reader
-        kept them (``None`` otherwise); equal items mean equal fields up to the types
-        of attribute values. C-level ``map`` passes, no per-id Python call."""
+    def items(self, codes: list[int]) -> list[Mapping[str, Any]] | None:
+        """The decoded source items of the elements with ``codes`` (first of each id),
+        when the reader kept them (``None`` otherwise); equal items mean equal fields
+        up to the types of attribute values. C-level ``map`` passes, no per-id Python
+        call."""
         items = getattr(self.columns, "element_items", None)
         if items is None:
             return None
-        codes = map(self.position.__getitem__, element_ids)
         if self.arrays.n != len(items):
-            codes = map(self.arrays.first.tolist().__getitem__, codes)
+            codes = self.arrays.first[codes].tolist() if len(codes) else []
         return list(map(items.__getitem__, codes))
 
     def attributes(self, codes: list[int]) -> list[Mapping[str, Any]]:

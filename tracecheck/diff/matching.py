@@ -12,15 +12,18 @@ from __future__ import annotations
 import hashlib
 import re
 from collections import Counter, defaultdict
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
-from itertools import filterfalse, repeat
+from itertools import compress, groupby, repeat
+
+import numpy as np
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, side_of
 
 __all__ = [
     "Matching",
+    "CodeMapping",
     "match_elements",
     "similarity",
     "tokens",
@@ -47,6 +50,9 @@ DEFAULT_THRESHOLD = 0.6
 # Tokens present in more than this many unmatched new elements of one kind are too
 # common ("the", "shall") to propose candidates; they still count in the score.
 _BLOCK_LIMIT = 200
+# Candidates come from an old element's rarest keys first; keys shared by more new
+# elements are added, a size class at a time, only while the pool stays within this.
+_POOL_SIZE = 32
 # Each unmatched old element keeps at most this many best candidates.
 _TOP_CANDIDATES = 8
 
@@ -83,10 +89,45 @@ class Matching:
     """``mapping``: old id -> new id for every matched element (by id or by content).
 
     ``reidentified``: (old id, new id, score) for the content pairs, sorted.
+    ``codes``: the same matching on the integer codes of the two models' distinct
+    ids (:class:`tracecheck.arrays.ModelArrays`): per old code, the new code it is
+    matched to, -1 when unmatched. The diff's later steps read this rather than
+    looking each id up again (a million-entry dict look-up misses the cache).
     """
 
-    mapping: dict[str, str]
+    mapping: Mapping[str, str]
     reidentified: list[tuple[str, str, float]]
+    codes: np.ndarray
+
+
+class CodeMapping(Mapping[str, str]):
+    """Old id -> new id, read from the codes of a matching: a view, not a dict of a
+    million entries (building one cost about 0.5 s at 1M elements, for the few
+    look-ups the impact analysis makes)."""
+
+    def __init__(self, old: Side, new: Side, codes: np.ndarray) -> None:
+        self._position = old.position
+        self._old_ids = old.ids
+        self._new_ids = new.arrays.names
+        self._codes = codes
+
+    def __getitem__(self, old_id: str) -> str:
+        code = self._position.get(old_id)
+        partner = -1 if code is None else int(self._codes[code])
+        if partner < 0:
+            raise KeyError(old_id)
+        return self._new_ids[partner]
+
+    def __contains__(self, old_id: object) -> bool:
+        code = self._position.get(old_id)  # type: ignore[call-overload]
+        return code is not None and bool(self._codes[code] >= 0)
+
+    def __iter__(self) -> Iterator[str]:
+        """Matched old ids in old order."""
+        return compress(self._old_ids, (self._codes >= 0).tolist())
+
+    def __len__(self) -> int:
+        return int(np.count_nonzero(self._codes >= 0))
 
 
 def tokens(text: str | None) -> frozenset[str]:
@@ -251,10 +292,18 @@ def _candidates(old: dict[str, _Profile], new: dict[str, _Profile]) -> dict[str,
     for old_id, profile in old.items():
         kind = profile.element.kind
         keys = profile.content | profile.neighbourhood or {None}
+        buckets = [hits for hits in map(index.get, zip(repeat(kind), keys)) if hits and len(hits) <= _BLOCK_LIMIT]
+        buckets.sort(key=len)
+        # Rarest keys first, and a whole size class or none (so the pool does not
+        # depend on the order of keys); the smallest class always counts.
         pool: set[str] = set()
-        for key in keys:
-            hits = index.get((kind, key), ())
-            if len(hits) <= _BLOCK_LIMIT:
+        taken = 0
+        for size, group in groupby(buckets, key=len):
+            group = list(group)
+            taken += size * len(group)
+            if pool and taken > _POOL_SIZE:
+                break
+            for hits in group:
                 pool.update(hits)
         found[old_id] = pool
     return found
@@ -316,8 +365,10 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     Notes
     -----
     Ids shared by both models are matched first, whatever their content. The remaining
-    old elements are scored against new elements of the same kind that share a token
-    or a mapped neighbour (an inverted index keeps this near linear); pairs below
+    old elements are scored against new elements of the same kind that share one of
+    its rarer tokens or mapped neighbours (an inverted index; keys are taken rarest
+    first and stop adding once about ``_POOL_SIZE`` candidates are in, so the work per
+    element does not grow with the model, which keeps the whole near linear); pairs below
     ``options.threshold`` are dropped and each old element keeps its best few
     candidates; the one-to-one assignment maximises the summed gain above the
     threshold (Edmonds 1965, via networkx).
@@ -341,16 +392,21 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
     # Read from the columns and integer codes (diff/sides.py): no element object is
     # built except for the unmatched elements that are scored.
     old_side, new_side = side_of(old), side_of(new)
-    in_new = new_side.position
-    shared = list(filter(in_new.__contains__, old_side.ids))  # C-level passes, in old order
-    mapping = dict(zip(shared, shared, strict=True))
-    old_left = list(filterfalse(mapping.__contains__, old_side.ids))
-    new_left = list(filterfalse(mapping.__contains__, new_side.ids))
+    old_ids, new_ids = old_side.ids, new_side.ids
+    # One look-up per old id; the rest are C-level passes over the codes.
+    codes = np.fromiter(map(new_side.position.get, old_ids, repeat(-1)), dtype=np.int64, count=len(old_ids))
+    found = codes >= 0
+    mapping = CodeMapping(old_side, new_side, codes)  # reads the codes: updated with them
+    taken = np.zeros(len(new_ids), dtype=bool)
+    taken[codes[found]] = True
+    old_left = list(compress(old_ids, (~found).tolist()))
+    new_left = list(compress(new_ids, (~taken).tolist()))
     if not old_left or not new_left:
-        return Matching(mapping, [])
-    identity = {i: i for i in mapping}
-    old_profiles = _profiles(old_side, old_left, identity)
-    new_profiles = _profiles(new_side, new_left, identity)
+        return Matching(mapping, [], codes)
+    # ``mapping`` is still the identity on the shared ids here (no content pair is in
+    # the codes yet): the neighbourhoods read it as the common id space.
+    old_profiles = _profiles(old_side, old_left, mapping)
+    new_profiles = _profiles(new_side, new_left, mapping)
     rarity = rarity_weights([*old_profiles.values(), *new_profiles.values()])
     scored = []
     for old_id, pool in sorted(_candidates(old_profiles, new_profiles).items()):
@@ -360,5 +416,6 @@ def match_elements(old: Model, new: Model, options: MatchOptions | None = None) 
         )
         scored += [(old_id, n, s) for s, n in ranked[:_TOP_CANDIDATES] if s >= options.threshold]
     pairs = _assign(scored, options.threshold)
-    mapping.update({o: n for o, n, _ in pairs})
-    return Matching(mapping, pairs)
+    for o, n, _ in pairs:
+        codes[old_side.position[o]] = new_side.position[n]
+    return Matching(mapping, pairs, codes)

@@ -3,17 +3,18 @@
 from __future__ import annotations
 
 import difflib
-import operator
 import re
 from collections import defaultdict
 from collections.abc import Mapping
-from itertools import compress, repeat
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from tracecheck.model import Element, Model
 from tracecheck.sides import Side, Triple, side_of
+
+if TYPE_CHECKING:
+    from tracecheck.diff.matching import Matching
 
 __all__ = ["field_changes", "word_diff", "moves", "link_changes", "link_json", "MISSING"]
 
@@ -93,15 +94,29 @@ def field_changes(old: Element, new: Element) -> dict[str, dict[str, Any]]:
     return dict(sorted(changes.items()))
 
 
-def moves(old: Model, new: Model, mapping: Mapping[str, str]) -> list[dict[str, str | None]]:
-    """Matched elements whose parent, seen through the mapping, is a different element."""
-    # All pairs in C-level map passes; a dict is built only for the few that moved.
-    # (A parent of None maps to itself: mapping.get(None, None).)
-    olds, news = list(mapping), list(mapping.values())
-    befores, afters = side_of(old).parents(olds), side_of(new).parents(news)
-    moved = map(operator.ne, map(mapping.get, befores, befores), afters)
-    found = [{"id": new_id, "old_parent": before, "new_parent": after}
-             for new_id, before, after in compress(zip(news, befores, afters, strict=True), moved)]
+def moves(old: Model, new: Model, matching: Matching) -> list[dict[str, str | None]]:
+    """Matched elements whose parent, seen through the matching, is a different element."""
+    # On the integer codes: parent codes of every matched pair in numpy passes; names
+    # only for the pairs that moved and those whose old parent has no image (a
+    # dangling parent, or an element that was not matched).
+    oa, na = side_of(old).arrays, side_of(new).arrays
+    codes = matching.codes
+    matched = np.flatnonzero(codes >= 0)
+    partners = codes[matched]
+    before, after = oa.parent[matched], na.parent[partners]
+    element = (before >= 0) & (before < oa.n)
+    image = np.where(element, codes[np.where(element, before, 0)], -1)  # -1: none, or no image
+    known = (before == -1) | (image >= 0)
+    moved = known & (image != after)  # a dangling parent's code never equals an element's
+
+    def name(arrays, code: int) -> str | None:
+        return None if code == -1 else arrays.names[code]
+
+    for i in np.flatnonzero(~known).tolist():
+        # The old parent keeps its own id (mapping.get(p, p)): compare the names.
+        moved[i] = name(oa, int(before[i])) != name(na, int(after[i]))
+    found = [{"id": na.names[int(partners[i])], "old_parent": name(oa, int(before[i])),
+              "new_parent": name(na, int(after[i]))} for i in np.flatnonzero(moved).tolist()]
     return sorted(found, key=lambda m: m["id"])
 
 
@@ -109,7 +124,7 @@ def link_json(triple: tuple[str, str, str]) -> dict[str, str]:
     return {"source": triple[0], "target": triple[1], "relation": triple[2]}
 
 
-def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str, list]:
+def link_changes(old: Model, new: Model, matching: Matching) -> dict[str, list]:
     """Links added and removed after mapping old ids to new ones, and relation changes.
 
     An old link is carried into the new id space end by end (an end that was never
@@ -118,8 +133,8 @@ def link_changes(old: Model, new: Model, mapping: Mapping[str, str]) -> dict[str
     same two ends when each is the only one there; both stay in ``added``/``removed``
     so those two lists remain the plain set difference of triples.
     """
-    renamed = {o: n for o, n in mapping.items() if o != n}
-    lost, origin, added = _compare_links(side_of(old), side_of(new), mapping, renamed)
+    renamed = {o: n for o, n, _ in matching.reidentified if o != n}
+    lost, origin, added = _compare_links(side_of(old), side_of(new), matching.codes, renamed)
     removed = sorted(origin[k] for k in lost)
     gone: dict[tuple[str, str], list[tuple[str, str, str]]] = defaultdict(list)
     for key in lost:
@@ -144,18 +159,34 @@ def _absent(keys: np.ndarray, others: np.ndarray) -> np.ndarray:
     sorts both sides with their inverse, several times slower here). The keys are
     searched in sorted order, so each search starts where the last one ended and
     stays in cache: at 3M links 0.8-1.5 s instead of 3-6 s for keys in file order."""
-    if len(others) == 0:
-        return np.ones(len(keys), dtype=bool)
-    ordered = np.sort(others)
-    order = np.argsort(keys, kind="stable")
-    wanted = keys[order]
+    return _absent_sorted(_sorted(keys), np.sort(others))
+
+
+def _absent_both(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_absent` both ways, each side sorted once (two sorts, not four)."""
+    sorted_a, sorted_b = _sorted(a), _sorted(b)
+    return _absent_sorted(sorted_a, sorted_b[1]), _absent_sorted(sorted_b, sorted_a[1])
+
+
+def _sorted(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The order that sorts ``keys``, and the keys in that order."""
+    order = np.argsort(keys)
+    return order, keys[order]
+
+
+def _absent_sorted(keys: tuple[np.ndarray, np.ndarray], ordered: np.ndarray) -> np.ndarray:
+    """Mask, in the original order of ``keys`` (as :func:`_sorted` gives them), of the
+    keys not in the sorted array ``ordered``."""
+    order, wanted = keys
+    if len(ordered) == 0:
+        return np.ones(len(wanted), dtype=bool)
     found = np.minimum(np.searchsorted(ordered, wanted), len(ordered) - 1)
-    absent = np.empty(len(keys), dtype=bool)
+    absent = np.empty(len(wanted), dtype=bool)
     absent[order] = ordered[found] != wanted
     return absent
 
 
-def _compare_links(old: Side, new: Side, mapping: Mapping[str, str], renamed: Mapping[str, str]):
+def _compare_links(old: Side, new: Side, matched: np.ndarray, renamed: Mapping[str, str]):
     """The set algebra of :func:`link_changes` on integer keys.
 
     Both models' names (element ids and dangling ends) and relations get codes in one
@@ -163,30 +194,38 @@ def _compare_links(old: Side, new: Side, mapping: Mapping[str, str], renamed: Ma
     becomes one integer, and two sorted look-ups find the links whose triple the
     other side lacks. Strings are touched only for those.
 
+    ``matched`` is the matching on codes (:attr:`Matching.codes`): a matched old
+    element takes its partner's code; only the unmatched ones and the dangling ends
+    are looked up by name (a removed element's id may be a dangling end in the new
+    model, and an old dangling end an element there).
+
     Returns the lost triples in the new id space, the old triple each stands for (a
     link touching a renamed element where several collapse into one, else the first
     in file order), and the added triples, sorted.
     """
     oa, na = old.arrays, new.arrays
-    names = dict(zip(na.names, range(len(na.names)), strict=True))
-    translated = list(map(mapping.get, oa.names, oa.names)) if renamed else oa.names
-    codes = np.fromiter(map(names.get, translated, repeat(-1)), dtype=np.int64, count=len(translated))
-    for index in np.flatnonzero(codes < 0).tolist():  # names only the old side has
-        codes[index] = names.setdefault(translated[index], len(names))
+    codes = np.full(len(oa.names), -1, dtype=np.int64)
+    codes[: oa.n] = matched
+    extra: dict[str, int] = {}  # names only the old side has
+    for index in np.flatnonzero(codes < 0).tolist():
+        name = oa.names[index]
+        code = na.code_of(name)
+        codes[index] = extra.setdefault(name, len(na.names) + len(extra)) if code is None else code
     relations = dict(zip(na.rel_names, range(len(na.rel_names)), strict=True))
     for name in oa.rel_names:
         relations.setdefault(name, len(relations))
     old_rel = np.array([relations[r] for r in oa.rel_names], dtype=np.int64)
-    size, kinds = len(names), max(len(relations), 1)
+    size, kinds = len(na.names) + len(extra), max(len(relations), 1)  # sizes of the common spaces
     old_keys = (codes[oa.src] * size + codes[oa.tgt]) * kinds + old_rel[oa.rel] if len(oa.src) else oa.src
     new_keys = (na.src * size + na.tgt) * kinds + na.rel
     oc, nc = old.columns, new.columns
     origin: dict[Triple, Triple] = {}
-    for index in np.flatnonzero(_absent(old_keys, new_keys)).tolist():
+    lost, gained = _absent_both(old_keys, new_keys)
+    for index in np.flatnonzero(lost).tolist():
         s, t, r = oc.link_sources[index], oc.link_targets[index], oc.link_relations[index]
         key = (renamed.get(s, s), renamed.get(t, t), r)
         if key not in origin or ((s in renamed or t in renamed) and origin[key] == key):
             origin[key] = (s, t, r)
     added = sorted({(nc.link_sources[i], nc.link_targets[i], nc.link_relations[i])
-                    for i in np.flatnonzero(_absent(new_keys, old_keys)).tolist()})
+                    for i in np.flatnonzero(gained).tolist()})
     return origin.keys(), origin, added
