@@ -240,3 +240,27 @@ def test_attributes_json_cannot_encode_take_the_key_and_type_comparison():
     old, new = parse(document("1"), "old.json"), parse(document("1.0"), "new.json")
     assert [entry["id"] for entry in diff_models(old, new).elements["modified"]] == ["REQ-2"]
     _both_ways(document("1"), document("1.0"))
+
+
+def test_percents_from_counts_equal_those_of_the_full_evaluation():
+    # Reference: evaluate_all (the sorted id lists, themselves checked against the
+    # networkx reference in test_differential.py) and its percent property; on every
+    # demo stage (invented ferry data) and the random documents below.
+    from tracecheck.coverage import evaluate_all, percents
+
+    config = Config()
+    for name in STAGE_NAMES:
+        model = parse(stage_bytes(name), f"{name}.json")
+        assert percents(model, config.declarations) == {
+            r.declaration.name: r.percent for r in evaluate_all(model, config.declarations)}
+
+
+@settings(max_examples=60, deadline=None)
+@given(_documents())
+def test_percents_equal_the_full_evaluation_on_random_documents(document):
+    from tracecheck.coverage import evaluate_all, percents
+
+    config = Config()
+    model = parse(document, "m.json")
+    assert percents(model, config.declarations) == {
+        r.declaration.name: r.percent for r in evaluate_all(_objects(parse(document, "m.json")), config.declarations)}

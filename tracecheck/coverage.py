@@ -21,7 +21,8 @@ from tracecheck.sides import side_of
 if TYPE_CHECKING:
     from tracecheck.arrays import ModelArrays
 
-__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "joined_pairs", "percent", "matches_where", "counterparts"]
+__all__ = ["DeclarationResult", "evaluate", "evaluate_codes", "evaluate_all", "joined_pairs", "percent", "percents",
+           "matches_where", "counterparts"]
 
 
 @dataclass(frozen=True)
@@ -108,6 +109,17 @@ def evaluate(model: Model, declaration: Declaration) -> DeclarationResult:
         return tuple(sorted(map(names.__getitem__, codes.tolist())))
 
     return DeclarationResult(declaration, ids(covered), ids(uncovered), ids(excluded))
+
+
+def percents(model: Model, declarations: Iterable[Declaration]) -> dict[str, float | None]:
+    """Declaration name -> covered percent (:func:`percent`), as ``evaluate_all`` would
+    give it, from the counts alone: no id is named or sorted (at 1M elements, sorting
+    the ids of ten declarations cost about 1.5 s for the diff's before/after table)."""
+    found: dict[str, float | None] = {}
+    for declaration in declarations:
+        covered, uncovered, _ = evaluate_codes(model, declaration)
+        found[declaration.name] = percent(len(covered), len(covered) + len(uncovered))
+    return found
 
 
 def evaluate_codes(model: Model, declaration: Declaration) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

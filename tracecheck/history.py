@@ -27,7 +27,7 @@ from typing import Any
 from tracecheck import gitsource
 from tracecheck.caution import caution
 from tracecheck.config import Config
-from tracecheck.coverage import evaluate_all
+from tracecheck.coverage import percents
 from tracecheck.diff import diff_models
 from tracecheck.errors import GitError, InputError, UsageError
 from tracecheck.formats import read_model
@@ -261,7 +261,7 @@ def measure(model: Model, config: Config) -> Metrics:
         by_kind=dict(sorted(Counter(e.kind for e in model.elements).items())),
         findings=dict(sorted(Counter(f.rule for f in findings).items())),
         severities={s: severities.get(s, 0) for s in SEVERITIES},
-        coverage={r.declaration.name: r.percent for r in evaluate_all(model, config.declarations)},
+        coverage=percents(model, config.declarations),
     )
 
 

@@ -18,7 +18,7 @@ import numpy as np
 
 from tracecheck.caution import caution
 from tracecheck.config import Config
-from tracecheck.coverage import evaluate_all
+from tracecheck.coverage import percents
 from tracecheck.diff.impact import impact_rules, impacted
 from tracecheck.diff.matching import Matching, MatchOptions, match_elements
 from tracecheck.diff.picture import Picture, neighbourhood_picture
@@ -204,8 +204,7 @@ def _impact(old: Model, new: Model, elements: dict[str, list], mapping: Mapping[
 
 
 def _coverage(old: Model, new: Model, config: Config) -> dict[str, dict[str, float | None]]:
-    before = {r.declaration.name: r.percent for r in evaluate_all(old, config.declarations)}
-    after = {r.declaration.name: r.percent for r in evaluate_all(new, config.declarations)}
+    before, after = percents(old, config.declarations), percents(new, config.declarations)
     return {name: {"old": before.get(name), "new": after.get(name)} for name in sorted(before.keys() | after.keys())}
 
 
