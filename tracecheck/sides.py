@@ -86,20 +86,11 @@ class Side:
         arrays = self.arrays
         return arrays.kind_names[arrays.kind[self.position[element_id]]]
 
-    @cached_property
-    def _parents(self) -> list[str | None]:
-        """Parent of each distinct element (its first occurrence), by code."""
-        parents = self.columns.element_parents
-        if self.arrays.n == len(parents):
-            return list(parents)
-        return [parents[i] for i in self.arrays.first.tolist()]
-
     def parent(self, element_id: str) -> str | None:
-        return self._parents[self.position[element_id]]
-
-    def parents(self, element_ids: list[str]) -> list[str | None]:
-        """:meth:`parent` of each id (all must exist), in C-level map passes."""
-        return list(map(self._parents.__getitem__, map(self.position.__getitem__, element_ids)))
+        """The parent named by the element's first occurrence (an id, a dangling name,
+        or ``None``), read from the parent codes."""
+        code = int(self.arrays.parent[self.position[element_id]])
+        return None if code == -1 else self.arrays.names[code]
 
     def _triple(self, index: int) -> Triple:
         columns = self.columns
