@@ -158,9 +158,7 @@ def _changed_pairs(old: Side, new: Side, old_codes: list[int], new_codes: list[i
 
 def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list]:
     # On the integer codes of the matching: no id is looked up again.
-    codes = matching.codes
-    matched = np.flatnonzero(codes >= 0)
-    partners = codes[matched]
+    matched, partners = matching.pairs()
     old_side, new_side = side_of(old), side_of(new)
     taken = np.zeros(len(new_side), dtype=bool)
     taken[partners] = True
@@ -174,7 +172,7 @@ def _element_lists(old: Model, new: Model, matching: Matching) -> dict[str, list
             modified.append(entry)
     return {
         "added": sorted(compress(new_side.ids, (~taken).tolist())),
-        "removed": sorted(compress(old_side.ids, (codes < 0).tolist())),
+        "removed": sorted(compress(old_side.ids, (matching.codes < 0).tolist())),
         "modified": modified,
         "moved": moves(old, new, matching),
         "reidentified": [{"old": o, "new": n, "score": s} for o, n, s in matching.reidentified],

@@ -99,6 +99,11 @@ class Matching:
     reidentified: list[tuple[str, str, float]]
     codes: np.ndarray
 
+    def pairs(self) -> tuple[np.ndarray, np.ndarray]:
+        """Every matched pair as codes: old codes in old order, and their new partners."""
+        matched = np.flatnonzero(self.codes >= 0)
+        return matched, self.codes[matched]
+
 
 class CodeMapping(Mapping[str, str]):
     """Old id -> new id, read from the codes of a matching: a view, not a dict of a

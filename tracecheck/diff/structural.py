@@ -101,8 +101,7 @@ def moves(old: Model, new: Model, matching: Matching) -> list[dict[str, str | No
     # dangling parent, or an element that was not matched).
     oa, na = side_of(old).arrays, side_of(new).arrays
     codes = matching.codes
-    matched = np.flatnonzero(codes >= 0)
-    partners = codes[matched]
+    matched, partners = matching.pairs()
     before, after = oa.parent[matched], na.parent[partners]
     element = (before >= 0) & (before < oa.n)
     image = np.where(element, codes[np.where(element, before, 0)], -1)  # -1: none, or no image
